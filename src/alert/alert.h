@@ -1,0 +1,36 @@
+// An alert: a count that falls outside its predictive bounds.
+#pragma once
+
+#include <cstdint>
+#include <optional>
+#include <string>
+
+#include "bounds/predictive.h"
+#include "core/observation.h"
+#include "series/model_spec.h"
+
+namespace tallyd {
+
+enum class AlertSide { high, low };
+std::string_view to_string(AlertSide s);
+
+struct Alert {
+  TimePoint time;
+  std::string series;
+  std::int64_t count = 0;
+  double exposure = 1;
+  double expected = 0;       // predictive mean
+  std::int64_t lower = 0;    // integer predictive bounds at alpha
+  std::int64_t upper = 0;
+  double p_value = 1;        // predictive tail probability of a count at least as extreme, on `side`
+  double alpha = 0;          // the threshold it was judged against
+  AlertSide side = AlertSide::high;
+  std::string detector = "bound";  // which detector fired: "bound" = one count outside its predictive bounds
+};
+
+// The verdict on one count: an alert when the count lies beyond a bound on a
+// side the spec watches (count > upper with p_high <= alpha, or count < lower
+// with p_low <= alpha), else nullopt. Pure.
+std::optional<Alert> judge_count(const Observation& obs, const bounds::Bounds& b, const AlertSpec& spec);
+
+}  // namespace tallyd

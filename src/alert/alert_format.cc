@@ -1,0 +1,31 @@
+#include "alert/alert_format.h"
+
+#include <fmt/format.h>
+#include <nlohmann/json.hpp>
+
+namespace tallyd {
+namespace {
+
+// JSON string escaping via nlohmann (handles control characters and UTF-8).
+std::string quoted(const std::string& s) { return nlohmann::json(s).dump(); }
+
+}  // namespace
+
+std::string alert_json(const Alert& a) {
+  // Fixed notation: expected to 4 significant decimals, p-values to 4
+  // significant digits; fmt's formatting is locale-independent and exact.
+  return fmt::format(
+      R"({{"time":"{}","series":{},"count":{},"expected":{:.4f},"lower":{},"upper":{},"p_value":{:.4g},"direction":"{}","exposure":{:.6g},"alpha":{:.6g},"detector":"{}"}})",
+      format_time(a.time), quoted(a.series), a.count, a.expected, a.lower, a.upper, a.p_value,
+      to_string(a.side), a.exposure, a.alpha, a.detector);
+}
+
+std::string alert_text(const Alert& a) {
+  if (a.side == AlertSide::high)
+    return fmt::format("{} {} HIGH count {} > upper {} (expected {:.1f}, p={:.2g}, exposure {:.6g})",
+                       format_time(a.time), a.series, a.count, a.upper, a.expected, a.p_value, a.exposure);
+  return fmt::format("{} {} LOW count {} < lower {} (expected {:.1f}, p={:.2g}, exposure {:.6g})",
+                     format_time(a.time), a.series, a.count, a.lower, a.expected, a.p_value, a.exposure);
+}
+
+}  // namespace tallyd

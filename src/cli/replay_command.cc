@@ -1,0 +1,113 @@
+// `tallyd replay FEED... [--config FILE] [--alerts FILE] [--rejects FILE]`
+#include <fstream>
+#include <iostream>
+
+#include <spdlog/spdlog.h>
+
+#include "alert/alert_format.h"
+#include "cli/command.h"
+#include "config/config.h"
+#include "feed/feed_merge.h"
+#include "replay/replay.h"
+
+namespace tallyd::cli {
+namespace {
+
+class ReplayCommand final : public Command {
+ public:
+  void define(CLI::App& sub) override {
+    sub.add_option("feeds", feeds_, "Feed files (CSV with a header row, or JSON Lines); several are merged by time")
+        ->required()
+        ->check(CLI::ExistingFile);
+    sub.add_option("-c,--config", config_path_, "Monitor config (TOML); built-in defaults when omitted")
+        ->check(CLI::ExistingFile);
+    sub.add_option("-a,--alerts", alerts_path_,
+                   "Write alerts as JSON Lines to this file (default: JSON Lines on standard output)");
+    sub.add_option("--rejects", rejects_path_, "Write every refused record, one line each, to this file");
+    sub.add_flag("-q,--quiet", quiet_, "Print no alert lines and no summary on the terminal");
+    sub.add_option("--max-line-bytes", max_line_bytes_, "Longest feed line accepted, in bytes")
+        ->check(CLI::Range(64, 64 * 1024 * 1024));
+    sub.footer(
+        "Each record is judged against its series' model fitted on earlier records only, then learned.\n"
+        "Exit status: 0 done (refused records are counted, not fatal), 1 usage or config error,\n"
+        "2 a feed could not be read.");
+  }
+
+  int run() override {
+    MonitorConfig config;
+    if (!config_path_.empty()) {
+      auto loaded = load_config(config_path_);
+      if (!loaded) {
+        spdlog::error("{}", loaded.error().message);
+        return kExitUsage;
+      }
+      config = std::move(loaded).value();
+    }
+
+    feed::ReadOptions read_options;
+    read_options.max_line_bytes = max_line_bytes_;
+    auto feeds = feed::FeedSet::open(feeds_, read_options);
+    if (!feeds) {
+      spdlog::error("{}", feeds.error().message);
+      return kExitData;
+    }
+
+    std::ofstream alerts_file, rejects_file;
+    ReplayOutputs out;
+    if (!alerts_path_.empty()) {
+      alerts_file.open(alerts_path_, std::ios::binary | std::ios::trunc);
+      if (!alerts_file) {
+        spdlog::error("{}: cannot write the alerts file", alerts_path_);
+        return kExitUsage;
+      }
+      out.alerts_json = &alerts_file;
+      if (!quiet_) out.alerts_text = &std::cout;
+    } else {
+      out.alerts_json = &std::cout;
+    }
+    if (!rejects_path_.empty()) {
+      rejects_file.open(rejects_path_, std::ios::binary | std::ios::trunc);
+      if (!rejects_file) {
+        spdlog::error("{}: cannot write the rejects file", rejects_path_);
+        return kExitUsage;
+      }
+    }
+    std::uint64_t shown = 0;
+    out.on_rejection = [&](const Rejection& r) {
+      if (rejects_file.is_open()) rejects_file << r.describe() << '\n';
+      // The terminal gets the first few; the rest are counted in the summary.
+      if (!quiet_ && shown < kShownRejections) spdlog::warn("{}", r.describe());
+      if (!quiet_ && ++shown == kShownRejections)
+        spdlog::warn("further refused records are counted but not shown{}",
+                     rejects_path_.empty() ? " (use --rejects FILE to keep them all)" : "");
+    };
+
+    Engine engine(config.settings, config.limits);
+    replay_feeds(*feeds, engine, out);
+    std::cout.flush();
+    if (alerts_file.is_open()) {
+      alerts_file.flush();
+      if (!alerts_file) {
+        spdlog::error("{}: writing the alerts file failed", alerts_path_);
+        return kExitData;
+      }
+    }
+    if (!quiet_) spdlog::info("replay: {}", describe_counters(engine.counters(), engine.series_count()));
+    return kExitOk;
+  }
+
+ private:
+  static constexpr std::uint64_t kShownRejections = 20;
+  std::vector<std::string> feeds_;
+  std::string config_path_;
+  std::string alerts_path_;
+  std::string rejects_path_;
+  std::size_t max_line_bytes_ = 64 * 1024;
+  bool quiet_ = false;
+};
+
+}  // namespace
+
+std::unique_ptr<Command> make_replay_command() { return std::make_unique<ReplayCommand>(); }
+
+}  // namespace tallyd::cli

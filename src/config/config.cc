@@ -1,0 +1,259 @@
+#include "config/config.h"
+
+#include <fstream>
+#include <set>
+#include <sstream>
+
+#include <fmt/format.h>
+#include <toml++/toml.h>
+
+namespace tallyd {
+namespace {
+
+// Collects the first error with its position; parsing stops at the first one.
+class Reader {
+ public:
+  explicit Reader(std::string_view source) : source_(source) {}
+
+  bool failed() const { return !error_.empty(); }
+  const std::string& error() const { return error_; }
+
+  void fail(const toml::node& node, std::string_view key, std::string_view what) {
+    if (failed()) return;
+    error_ = fmt::format("{}:{}: {}: {}", source_, node.source().begin.line, key, what);
+  }
+
+  // Every key of `table` must be in `allowed`.
+  void check_keys(const toml::table& table, std::string_view prefix, const std::set<std::string_view>& allowed) {
+    for (const auto& [k, v] : table) {
+      if (!allowed.count(k.str())) {
+        std::string list;
+        for (std::string_view a : allowed) list += (list.empty() ? "" : ", ") + std::string(a);
+        fail(v, join(prefix, k.str()), fmt::format("unknown key (expected one of: {})", list));
+      }
+    }
+  }
+
+  static std::string join(std::string_view prefix, std::string_view key) {
+    return prefix.empty() ? std::string(key) : fmt::format("{}.{}", prefix, key);
+  }
+
+  template <class T>
+  const T* get(const toml::table& t, std::string_view key, std::string_view prefix, std::string_view type_name) {
+    const toml::node* n = t.get(key);
+    if (!n) return nullptr;
+    const T* v = n->as<T>();
+    if (!v) fail(*n, join(prefix, key), fmt::format("must be {}", type_name));
+    return v;
+  }
+
+  void read_model(const toml::table& t, std::string_view prefix, ModelSpec& m) {
+    check_keys(t, prefix, {"family", "link", "trend", "covariates", "seasons", "window", "min_history", "refit_every"});
+    if (auto* v = get<toml::value<std::string>>(t, "family", prefix, "a string")) {
+      if (auto f = glm::parse_family(v->get())) m.family = *f;
+      else fail(*v, join(prefix, "family"), fmt::format("'{}' is not one of poisson, quasipoisson, negbin", v->get()));
+    }
+    if (auto* v = get<toml::value<std::string>>(t, "link", prefix, "a string")) {
+      if (auto l = glm::parse_link(v->get())) m.link = *l;
+      else fail(*v, join(prefix, "link"), fmt::format("'{}' is not one of log, sqrt, identity", v->get()));
+    }
+    if (auto* v = get<toml::value<bool>>(t, "trend", prefix, "true or false")) m.trend = v->get();
+    if (auto* arr = get<toml::array>(t, "covariates", prefix, "an array of column names")) {
+      m.covariates.clear();
+      for (const toml::node& e : *arr) {
+        const auto* s = e.as_string();
+        if (!s || s->get().empty()) {
+          fail(e, join(prefix, "covariates"), "every entry must be a non-empty column name");
+          return;
+        }
+        if (s->get() == "time" || s->get() == "series" || s->get() == "count" || s->get() == "exposure") {
+          fail(e, join(prefix, "covariates"), fmt::format("'{}' is a reserved column, not a covariate", s->get()));
+          return;
+        }
+        m.covariates.push_back(s->get());
+      }
+    }
+    if (auto* arr = get<toml::array>(t, "seasons", prefix, "an array of tables ([[model.seasons]])")) {
+      m.seasons.clear();
+      for (const toml::node& e : *arr) {
+        const toml::table* st = e.as_table();
+        const std::string sp = join(prefix, "seasons");
+        if (!st) {
+          fail(e, sp, "every entry must be a table with period and harmonics");
+          return;
+        }
+        check_keys(*st, sp, {"period", "harmonics"});
+        Season season;
+        const auto* period = get<toml::value<std::string>>(*st, "period", sp, "a duration string like \"1y\"");
+        if (!period) {
+          if (!failed()) fail(e, join(sp, "period"), "is required");
+          return;
+        }
+        auto d = parse_duration(period->get());
+        if (!d) {
+          fail(*period, join(sp, "period"), d.error().message);
+          return;
+        }
+        season.period = *d;
+        if (auto* h = get<toml::value<int64_t>>(*st, "harmonics", sp, "an integer")) {
+          if (h->get() < 1 || h->get() > 12) fail(*h, join(sp, "harmonics"), "must be between 1 and 12");
+          season.harmonics = static_cast<int>(h->get());
+        }
+        m.seasons.push_back(season);
+      }
+    }
+    if (const toml::node* w = t.get("window")) read_window(*w, join(prefix, "window"), m.window);
+    if (auto* v = get<toml::value<int64_t>>(t, "min_history", prefix, "an integer")) {
+      if (v->get() < 1) fail(*v, join(prefix, "min_history"), "must be at least 1");
+      else m.min_history = static_cast<std::size_t>(v->get());
+    }
+    if (auto* v = get<toml::value<int64_t>>(t, "refit_every", prefix, "an integer")) {
+      if (v->get() < 1) fail(*v, join(prefix, "refit_every"), "must be at least 1");
+      else m.refit_every = static_cast<std::size_t>(v->get());
+    }
+  }
+
+  // window = "3y" | 300 | { span = "3y", records = 300 }
+  void read_window(const toml::node& node, std::string_view key, Window& w) {
+    auto span_from = [&](const toml::node& n) {
+      auto d = parse_duration(n.as_string()->get());
+      if (!d) fail(n, key, d.error().message);
+      else w.span = *d;
+    };
+    auto records_from = [&](const toml::node& n) {
+      int64_t r = n.as_integer()->get();
+      if (r < 3) fail(n, key, "a record count must be at least 3");
+      else w.records = static_cast<std::size_t>(r);
+    };
+    if (node.is_string()) {
+      span_from(node);
+      w.records.reset();
+    } else if (node.is_integer()) {
+      records_from(node);
+      w.span.reset();
+    } else if (const toml::table* t = node.as_table()) {
+      check_keys(*t, key, {"span", "records"});
+      w.span.reset();
+      w.records.reset();
+      if (const toml::node* s = t->get("span")) {
+        if (s->is_string()) span_from(*s);
+        else fail(*s, fmt::format("{}.span", key), "must be a duration string like \"2y\"");
+      }
+      if (const toml::node* r = t->get("records")) {
+        if (r->is_integer()) records_from(*r);
+        else fail(*r, fmt::format("{}.records", key), "must be an integer");
+      }
+      if (!w.span && !w.records && !failed()) fail(node, key, "needs span, records or both");
+    } else {
+      fail(node, key, "must be a duration string, a record count, or { span = ..., records = ... }");
+    }
+  }
+
+  void read_alert(const toml::table& t, std::string_view prefix, AlertSpec& a) {
+    check_keys(t, prefix, {"alpha", "direction", "method", "draws", "seed", "quadrature_nodes"});
+    if (const toml::node* n = t.get("alpha")) {
+      std::optional<double> v = n->value<double>();
+      if (!v || !(*v > 0 && *v < 0.5)) fail(*n, join(prefix, "alpha"), "must be a number between 0 and 0.5");
+      else a.alpha = *v;
+    }
+    if (auto* v = get<toml::value<std::string>>(t, "direction", prefix, "a string")) {
+      if (auto d = parse_direction(v->get())) a.direction = *d;
+      else fail(*v, join(prefix, "direction"), fmt::format("'{}' is not one of high, low, both", v->get()));
+    }
+    if (auto* v = get<toml::value<std::string>>(t, "method", prefix, "a string")) {
+      if (auto m = bounds::parse_method(v->get())) a.method = *m;
+      else fail(*v, join(prefix, "method"), fmt::format("'{}' is not one of quadrature, simulate", v->get()));
+    }
+    if (auto* v = get<toml::value<int64_t>>(t, "draws", prefix, "an integer")) {
+      if (v->get() < 100 || v->get() > 10'000'000) fail(*v, join(prefix, "draws"), "must be between 100 and 10000000");
+      else a.draws = static_cast<int>(v->get());
+    }
+    if (auto* v = get<toml::value<int64_t>>(t, "quadrature_nodes", prefix, "an integer")) {
+      if (v->get() < 2 || v->get() > 200) fail(*v, join(prefix, "quadrature_nodes"), "must be between 2 and 200");
+      else a.quadrature_nodes = static_cast<int>(v->get());
+    }
+    if (auto* v = get<toml::value<int64_t>>(t, "seed", prefix, "an integer")) {
+      if (v->get() < 0) fail(*v, join(prefix, "seed"), "must be non-negative");
+      else a.seed = static_cast<std::uint64_t>(v->get());
+    }
+  }
+
+  void read_limits(const toml::table& t, EngineLimits& l) {
+    check_keys(t, "limits", {"max_series"});
+    if (auto* v = get<toml::value<int64_t>>(t, "max_series", "limits", "an integer")) {
+      if (v->get() < 1) fail(*v, "limits.max_series", "must be at least 1");
+      else l.max_series = static_cast<std::size_t>(v->get());
+    }
+  }
+
+ private:
+  std::string source_;
+  std::string error_;
+};
+
+}  // namespace
+
+Result<MonitorConfig> parse_config(std::string_view text, std::string_view source_name) {
+  toml::table root;
+  try {
+    root = toml::parse(text, source_name);
+  } catch (const toml::parse_error& e) {
+    return Error{fmt::format("{}:{}: {}", source_name, e.source().begin.line, e.description())};
+  }
+  MonitorConfig config;
+  config.source = std::string(source_name);
+  Reader r(source_name);
+  r.check_keys(root, "", {"model", "alert", "limits", "series"});
+
+  auto table_at = [&](std::string_view key) -> const toml::table* {
+    const toml::node* n = root.get(key);
+    if (!n) return nullptr;
+    if (!n->is_table()) r.fail(*n, key, "must be a table");
+    return n->as_table();
+  };
+  if (const toml::table* t = table_at("model")) r.read_model(*t, "model", config.settings.defaults.model);
+  if (const toml::table* t = table_at("alert")) r.read_alert(*t, "alert", config.settings.defaults.alert);
+  if (const toml::table* t = table_at("limits")) r.read_limits(*t, config.limits);
+
+  if (const toml::node* n = root.get("series")) {
+    const toml::array* arr = n->as_array();
+    if (!arr) r.fail(*n, "series", "must be an array of tables ([[series]])");
+    for (std::size_t i = 0; arr && i < arr->size() && !r.failed(); ++i) {
+      const toml::table* st = (*arr)[i].as_table();
+      const std::string prefix = fmt::format("series[{}]", i);
+      if (!st) {
+        r.fail((*arr)[i], prefix, "must be a table");
+        break;
+      }
+      r.check_keys(*st, prefix, {"match", "model", "alert"});
+      SettingsRule rule{"", config.settings.defaults};
+      const toml::node* m = st->get("match");
+      if (!m || !m->is_string() || m->as_string()->get().empty()) {
+        r.fail(m ? *m : (*arr)[i], prefix + ".match", "is required: a series id glob like \"trap-*\"");
+        break;
+      }
+      rule.match = m->as_string()->get();
+      if (const toml::node* mt = st->get("model")) {
+        if (mt->is_table()) r.read_model(*mt->as_table(), prefix + ".model", rule.settings.model);
+        else r.fail(*mt, prefix + ".model", "must be a table");
+      }
+      if (const toml::node* at = st->get("alert")) {
+        if (at->is_table()) r.read_alert(*at->as_table(), prefix + ".alert", rule.settings.alert);
+        else r.fail(*at, prefix + ".alert", "must be a table");
+      }
+      config.settings.rules.push_back(std::move(rule));
+    }
+  }
+  if (r.failed()) return Error{r.error()};
+  return config;
+}
+
+Result<MonitorConfig> load_config(const std::string& path) {
+  std::ifstream in(path, std::ios::binary);
+  if (!in) return Error{fmt::format("{}: cannot open config file", path)};
+  std::ostringstream text;
+  text << in.rdbuf();
+  return parse_config(text.str(), path);
+}
+
+}  // namespace tallyd

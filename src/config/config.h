@@ -1,0 +1,37 @@
+// Reading a tallyd config (TOML). This module is the only user of toml++: it
+// fills the options structs of the other modules, overriding only the fields
+// the file sets.
+//
+// Layout:
+//   [model]   defaults for every series (series/model_spec.h: ModelSpec)
+//   [[model.seasons]] period = "1y", harmonics = 2
+//   [alert]   defaults for judging (AlertSpec)
+//   [limits]  engine limits (EngineLimits)
+//   [[series]] match = "glob", then model.* / alert.* overrides; first match wins
+// Every error names the file, the line and the key, e.g.
+//   "monitor.toml:7: model.family: 'poison' is not one of poisson, quasipoisson, negbin".
+// Unknown keys are errors (a typo must not silently fall back to a default).
+#pragma once
+
+#include <string>
+#include <string_view>
+
+#include "core/result.h"
+#include "engine/engine.h"
+#include "series/model_spec.h"
+
+namespace tallyd {
+
+struct MonitorConfig {
+  SettingsTable settings;
+  EngineLimits limits;
+  std::string source;  // file the config came from ("" for built-in defaults)
+};
+
+// Parses TOML text; `source_name` is used in messages.
+Result<MonitorConfig> parse_config(std::string_view text, std::string_view source_name);
+
+// Reads and parses a file; a missing or unreadable file is an error naming it.
+Result<MonitorConfig> load_config(const std::string& path);
+
+}  // namespace tallyd

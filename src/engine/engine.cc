@@ -1,0 +1,70 @@
+#include "engine/engine.h"
+
+#include <cmath>
+
+#include <fmt/format.h>
+
+namespace tallyd {
+
+Engine::Engine(const SettingsTable& settings, EngineLimits limits)
+    : settings_(&settings), limits_(limits) {}
+
+const SeriesModel* Engine::find(const std::string& series) const {
+  auto it = series_.find(series);
+  return it == series_.end() ? nullptr : it->second.get();
+}
+
+IngestResult Engine::reject(const Observation& obs, RejectReason reason, std::string detail) {
+  counters_.rejected.add(reason);
+  IngestResult r;
+  r.kind = IngestResult::Kind::rejected;
+  r.rejection = Rejection{reason, obs.where, std::move(detail)};
+  return r;
+}
+
+IngestResult Engine::ingest(const Observation& obs) {
+  ++counters_.records;
+  // Parsers already refuse these; the engine checks again because it is also
+  // fed directly (tests, sockets) and must never learn from them.
+  if (obs.series.empty()) return reject(obs, RejectReason::bad_series, "series id is empty");
+  if (obs.count < 0) return reject(obs, RejectReason::bad_count, fmt::format("count {} is negative", obs.count));
+  if (!std::isfinite(obs.exposure) || obs.exposure < 0)
+    return reject(obs, RejectReason::bad_exposure, fmt::format("exposure {} is not a positive number", obs.exposure));
+  if (obs.exposure == 0)
+    return reject(obs, RejectReason::zero_exposure, "exposure is 0: no effort, record skipped");
+
+  auto it = series_.find(obs.series);
+  if (it == series_.end()) {
+    if (series_.size() >= limits_.max_series)
+      return reject(obs, RejectReason::too_many_series,
+                    fmt::format("series '{}' would exceed the limit of {} series", obs.series, limits_.max_series));
+    const SeriesSettings& s = settings_->for_series(obs.series);
+    it = series_.emplace(obs.series, std::make_unique<SeriesModel>(obs.series, s)).first;
+  }
+  SeriesModel& model = *it->second;
+
+  if (auto missing = model.missing_covariate(obs))
+    return reject(obs, RejectReason::missing_covariate,
+                  fmt::format("series '{}' needs covariate '{}', which the record lacks", obs.series, *missing));
+  if (auto last = model.last_time(); last && obs.time <= *last)
+    return reject(obs, RejectReason::out_of_order,
+                  fmt::format("time {} is not after the series' newest record {}", format_time(obs.time),
+                              format_time(*last)));
+
+  IngestResult r;
+  if (model.ready()) {
+    // Judge before learning: the count must not widen its own interval.
+    r.kind = IngestResult::Kind::judged;
+    r.prediction = model.predict(obs);
+    r.alert = judge_count(obs, r.prediction->bounds, model.settings().alert);
+    ++counters_.judged;
+    if (r.alert) ++(r.alert->side == AlertSide::high ? counters_.alerts_high : counters_.alerts_low);
+  } else {
+    r.kind = IngestResult::Kind::warming_up;
+    ++counters_.warming_up;
+  }
+  model.learn(obs);
+  return r;
+}
+
+}  // namespace tallyd

@@ -1,0 +1,48 @@
+#include "replay/replay.h"
+
+#include <fmt/format.h>
+
+#include "alert/alert_format.h"
+
+namespace tallyd {
+
+std::uint64_t replay_feeds(feed::FeedSet& feeds, Engine& engine, const ReplayOutputs& out) {
+  std::uint64_t written = 0;
+  feed::FeedItem item;
+  while (feeds.next(item)) {
+    if (const Rejection* bad = std::get_if<Rejection>(&item)) {
+      engine.count_rejection(bad->reason);
+      if (out.on_rejection) out.on_rejection(*bad);
+      continue;
+    }
+    const Observation& obs = std::get<Observation>(item);
+    IngestResult r = engine.ingest(obs);
+    if (r.rejection) {
+      if (out.on_rejection) out.on_rejection(*r.rejection);
+      continue;
+    }
+    if (!r.alert) continue;
+    if (out.alerts_json) *out.alerts_json << alert_json(*r.alert) << '\n';
+    if (out.alerts_text) *out.alerts_text << alert_text(*r.alert) << '\n';
+    ++written;
+  }
+  return written;
+}
+
+std::string describe_counters(const EngineCounters& c, std::size_t series_count) {
+  const std::uint64_t rejected = c.rejected.total();
+  std::string reasons;
+  for (std::size_t i = 0; i < kRejectReasonCount; ++i) {
+    if (c.rejected.by_reason[i] == 0) continue;
+    if (!reasons.empty()) reasons += ", ";
+    reasons += fmt::format("{} {}", reject_label(static_cast<RejectReason>(i)), c.rejected.by_reason[i]);
+  }
+  // Parser refusals never reach ingest, so the records read are those offered plus those.
+  const std::uint64_t parser_rejected = rejected - (c.records - c.judged - c.warming_up);
+  return fmt::format("{} records: {} judged, {} warming up, {} rejected{}; {} alerts ({} high, {} low); {} series",
+                     c.records + parser_rejected, c.judged, c.warming_up, rejected,
+                     reasons.empty() ? "" : " (" + reasons + ")", c.alerts_high + c.alerts_low, c.alerts_high,
+                     c.alerts_low, series_count);
+}
+
+}  // namespace tallyd

@@ -1,0 +1,31 @@
+// Replaying feed files through the engine: the data path of `tallyd replay`
+// from merged feed items to written alerts, with no command-line concerns.
+#pragma once
+
+#include <cstdint>
+#include <functional>
+#include <ostream>
+#include <string>
+#include <vector>
+
+#include "core/reject.h"
+#include "engine/engine.h"
+#include "feed/feed_merge.h"
+
+namespace tallyd {
+
+struct ReplayOutputs {
+  std::ostream* alerts_json = nullptr;  // JSON Lines, one object per alert; null = not written
+  std::ostream* alerts_text = nullptr;  // one human-readable line per alert; null = not written
+  // Called for every refused record (parser or engine), in feed order.
+  std::function<void(const Rejection&)> on_rejection;
+};
+
+// Feeds every item of `feeds` through `engine` in merged time order and
+// writes each alert as it is raised. Returns the number of alerts written.
+std::uint64_t replay_feeds(feed::FeedSet& feeds, Engine& engine, const ReplayOutputs& out);
+
+// "1234 records: 1100 judged, 100 warming up, 34 rejected (bad_count 3, ...); 12 alerts (10 high, 2 low); 24 series"
+std::string describe_counters(const EngineCounters& c, std::size_t series_count);
+
+}  // namespace tallyd

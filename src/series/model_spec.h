@@ -1,0 +1,79 @@
+// What model a series gets and how its counts are judged: the options that a
+// config fills in (config/ is the only place that reads TOML).
+#pragma once
+
+#include <cstddef>
+#include <cstdint>
+#include <optional>
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include "bounds/predictive.h"
+#include "core/time.h"
+#include "glm/family.h"
+
+namespace tallyd {
+
+// One periodic component of the linear predictor: `harmonics` sin/cos pairs
+// of the given period, phased on absolute (UTC epoch) time so that every
+// series shares the same calendar.
+struct Season {
+  Seconds period{};   // e.g. 365.25 days, 7 days, 1 day
+  int harmonics = 1;  // number of sin/cos pairs, >= 1
+};
+
+// How much history a series keeps for training. Both limits apply when set.
+struct Window {
+  std::optional<Seconds> span;           // keep records newer than (latest - span)
+  std::optional<std::size_t> records;    // keep at most this many records
+};
+
+struct ModelSpec {
+  glm::Family family = glm::Family::quasipoisson;  // overdispersion is the norm in field counts (common practice)
+  glm::Link link = glm::Link::log;
+  bool trend = false;                    // linear term in years since the series' first accepted record
+  std::vector<Season> seasons;           // Fourier terms
+  std::vector<std::string> covariates;   // feed columns used as covariates, in design order
+  Window window{Seconds{static_cast<std::int64_t>(2 * kDaysPerYear * kSecondsPerDay)}, 1000};
+  std::size_t min_history = 20;          // records before any judgement (raised to #coefficients + 2)
+  std::size_t refit_every = 1;           // refit after this many new records (1 = every record)
+};
+
+enum class Direction { high, low, both };
+std::string_view to_string(Direction d);
+std::optional<Direction> parse_direction(std::string_view text);  // "high", "low", "both"
+
+struct AlertSpec {
+  double alpha = 0.001;                 // one-sided tail probability for each bound, in (0, 0.5)
+  Direction direction = Direction::both;
+  bounds::Method method = bounds::Method::quadrature;
+  int draws = 10000;                    // simulate: draws per record
+  int quadrature_nodes = 48;            // quadrature: Gauss-Hermite nodes
+  std::uint64_t seed = 1;               // simulate: base seed of the reproducible draws
+};
+
+// Everything that governs one series.
+struct SeriesSettings {
+  ModelSpec model;
+  AlertSpec alert;
+};
+
+// Rules that pick settings by series id: the first rule whose glob matches
+// wins, else the defaults. Globs use '*' (any run) and '?' (one character).
+struct SettingsRule {
+  std::string match;
+  SeriesSettings settings;
+};
+
+struct SettingsTable {
+  SeriesSettings defaults;
+  std::vector<SettingsRule> rules;
+
+  const SeriesSettings& for_series(std::string_view series) const;
+};
+
+// Shell-style glob match of `text` against `pattern` ('*' and '?').
+bool glob_match(std::string_view pattern, std::string_view text);
+
+}  // namespace tallyd

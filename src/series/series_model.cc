@@ -1,0 +1,163 @@
+#include "series/series_model.h"
+
+#include <algorithm>
+#include <cmath>
+#include <limits>
+
+#include "series/design.h"
+
+namespace tallyd {
+
+SeriesModel::SeriesModel(std::string id, const SeriesSettings& settings)
+    : id_(std::move(id)), settings_(&settings), p_(coefficient_count(settings.model)) {}
+
+std::optional<std::string> SeriesModel::missing_covariate(const Observation& obs) const {
+  for (const std::string& name : settings_->model.covariates)
+    if (obs.covariate(name) == nullptr) return name;
+  return std::nullopt;
+}
+
+std::size_t SeriesModel::min_history() const {
+  return std::max(settings_->model.min_history, static_cast<std::size_t>(p_) + 2);
+}
+
+bool SeriesModel::ready() const { return has_fit_ && records_.size() >= min_history(); }
+
+std::optional<TimePoint> SeriesModel::last_time() const {
+  if (records_.empty()) return std::nullopt;
+  return records_.back().time;
+}
+
+std::vector<double> SeriesModel::covariates_of(const Observation& obs) const {
+  std::vector<double> values;
+  values.reserve(settings_->model.covariates.size());
+  for (const std::string& name : settings_->model.covariates) {
+    const double* v = obs.covariate(name);
+    values.push_back(v ? *v : std::numeric_limits<double>::quiet_NaN());
+  }
+  return values;
+}
+
+double SeriesModel::row_for(TimePoint time, double exposure, const double* covariates,
+                            Eigen::Ref<Eigen::RowVectorXd> row) const {
+  DesignInput in{time, origin_.value_or(time), exposure, covariates};
+  return design_row(settings_->model, in, row);
+}
+
+Prediction SeriesModel::predict(const Observation& obs) const {
+  const std::vector<double> cov = covariates_of(obs);
+  Eigen::RowVectorXd x(p_);
+  const double offset = row_for(obs.time, obs.exposure, cov.data(), x);
+
+  Prediction out;
+  const double linear = x.dot(fit_.coefficients);
+  const Eigen::VectorXd cx = fit_.covariance * x.transpose();
+  out.predictor.eta_mean = linear + offset;
+  out.predictor.eta_variance = std::max(0.0, x.dot(cx));
+  out.noise.family = settings_->model.family;
+  out.noise.link = settings_->model.link;
+  out.noise.dispersion = fit_.dispersion;
+  out.noise.theta = fit_.theta;
+
+  const AlertSpec& a = settings_->alert;
+  bounds::Options options;
+  options.method = a.method;
+  options.draws = a.draws;
+  options.quadrature_nodes = a.quadrature_nodes;
+  options.alpha = a.alpha;
+  if (a.method == bounds::Method::simulate) {
+    bounds::Rng rng = bounds::Rng::for_record(a.seed, id_, obs.time.time_since_epoch().count());
+    out.bounds = bounds::evaluate(out.predictor, out.noise, obs.count, options, &rng);
+  } else {
+    out.bounds = bounds::evaluate(out.predictor, out.noise, obs.count, options, nullptr);
+  }
+  return out;
+}
+
+void SeriesModel::learn(const Observation& obs, double weight) {
+  if (!origin_) origin_ = obs.time;
+  records_.push_back(Stored{obs.time, obs.count, obs.exposure, weight});
+  for (const std::string& name : settings_->model.covariates) {
+    const double* v = obs.covariate(name);
+    covariate_values_.push_back(v ? *v : 0.0);
+  }
+  trim_window(obs.time);
+  ++since_refit_;
+  if (records_.size() >= min_history() &&
+      (since_refit_ >= settings_->model.refit_every || !has_fit_)) {
+    refit();
+  }
+}
+
+void SeriesModel::trim_window(TimePoint latest) {
+  const Window& w = settings_->model.window;
+  const std::size_t k = settings_->model.covariates.size();
+  auto drop_front = [&] {
+    records_.pop_front();
+    covariate_values_.erase(covariate_values_.begin(), covariate_values_.begin() + static_cast<long>(k));
+  };
+  if (w.span) {
+    while (!records_.empty() && records_.front().time <= latest - *w.span) drop_front();
+  }
+  if (w.records) {
+    while (records_.size() > *w.records) drop_front();
+  }
+}
+
+void SeriesModel::build_design(Eigen::MatrixXd& X, Eigen::VectorXd& y, Eigen::VectorXd& offset,
+                               Eigen::VectorXd& weights) const {
+  const std::size_t n = records_.size();
+  const std::size_t k = settings_->model.covariates.size();
+  X.resize(static_cast<Eigen::Index>(n), p_);
+  y.resize(static_cast<Eigen::Index>(n));
+  offset.resize(static_cast<Eigen::Index>(n));
+  weights.resize(static_cast<Eigen::Index>(n));
+  std::vector<double> cov(k);
+  for (std::size_t i = 0; i < n; ++i) {
+    const Stored& r = records_[i];
+    for (std::size_t c = 0; c < k; ++c) cov[c] = covariate_values_[i * k + c];
+    const auto row = static_cast<Eigen::Index>(i);
+    offset(row) = row_for(r.time, r.exposure, cov.data(), X.row(row));
+    y(row) = static_cast<double>(r.count);
+    weights(row) = r.weight;
+  }
+}
+
+glm::FitOptions SeriesModel::fit_options() const {
+  glm::FitOptions options;
+  options.family = settings_->model.family;
+  options.link = settings_->model.link;
+  return options;
+}
+
+void SeriesModel::refit() {
+  since_refit_ = 0;
+  if (records_.empty()) return;
+  build_design(X_, y_, offset_, weights_);
+
+  glm::FitOptions options = fit_options();
+  options.null_deviance = false;  // not needed for judging; fit_report() asks for it
+  if (has_fit_ && std::isfinite(fit_.theta)) options.start_theta = fit_.theta;
+  const Eigen::VectorXd* start = has_fit_ ? &fit_.coefficients : nullptr;
+
+  glm::FitResult result = glm::fit_glm(X_, y_, offset_, weights_, options, start, true);
+  ++fits_done_;
+  last_fit_status_ = result.status;
+  last_fit_note_ = result.note;
+  // A failed fit keeps the previous coefficients; a non-converged one is used
+  // only when there is nothing better.
+  if (result.status == glm::FitStatus::ok ||
+      (result.status == glm::FitStatus::not_converged && !has_fit_)) {
+    fit_ = std::move(result);
+    has_fit_ = true;
+  }
+}
+
+glm::FitResult SeriesModel::fit_report() const {
+  Eigen::MatrixXd X;
+  Eigen::VectorXd y, offset, weights;
+  build_design(X, y, offset, weights);
+  return glm::fit_glm(X, y, offset, weights, fit_options(), nullptr, true);
+}
+
+}  // namespace tallyd

@@ -1,0 +1,110 @@
+// The online model of one series: its training history, its current fit, and
+// the predictive bounds for the next record.
+//
+// Streaming contract (the same for replay and the service): a new record is
+// first judged against the fit made from the series' earlier records
+// (`predict`), then joins the history (`learn`), which trims the window and
+// refits on the configured cadence. A fit that fails keeps the previous
+// coefficients; the reason is kept in `last_fit_note()`.
+// Not thread-safe; owned by one engine.
+#pragma once
+
+#include <cstdint>
+#include <deque>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include <Eigen/Dense>
+
+#include "bounds/predictive.h"
+#include "core/observation.h"
+#include "glm/fit.h"
+#include "series/model_spec.h"
+
+namespace tallyd {
+
+// What the model says about one record before seeing it.
+struct Prediction {
+  bounds::Predictor predictor;  // eta mean and variance, offset included
+  bounds::CountNoise noise;
+  bounds::Bounds bounds;        // evaluated at the record's count
+};
+
+class SeriesModel {
+ public:
+  // `settings` must outlive the model.
+  SeriesModel(std::string id, const SeriesSettings& settings);
+
+  const std::string& id() const { return id_; }
+  const SeriesSettings& settings() const { return *settings_; }
+
+  // The name of a covariate the model needs that `obs` lacks, or nullopt.
+  std::optional<std::string> missing_covariate(const Observation& obs) const;
+
+  // True once the series has enough history and a usable fit to judge records.
+  bool ready() const;
+
+  // Predictive bounds for `obs` from the current fit. Precondition: ready()
+  // and !missing_covariate(obs). Const: judging never changes the model.
+  Prediction predict(const Observation& obs) const;
+
+  // Adds `obs` to the training history, trims the window, refits if due.
+  // Precondition: obs.time is later than every record learned so far.
+  void learn(const Observation& obs, double weight = 1.0);
+
+  // Refits now on the whole current window, whatever the cadence.
+  void refit();
+
+  // A fresh fit of the current window from a cold start, with the null
+  // deviance, for reports; does not change the model.
+  glm::FitResult fit_report() const;
+
+  std::optional<TimePoint> last_time() const;
+  // Time of the oldest record still in the window. Precondition: history_size() > 0.
+  TimePoint first_time_in_window() const { return records_.front().time; }
+  std::size_t history_size() const { return records_.size(); }
+  std::size_t min_history() const;  // effective: max(spec min_history, #coefficients + 2)
+  const glm::FitResult& fit() const { return fit_; }
+  bool has_fit() const { return has_fit_; }
+  const std::string& last_fit_note() const { return last_fit_note_; }
+  glm::FitStatus last_fit_status() const { return last_fit_status_; }
+  std::uint64_t fits_done() const { return fits_done_; }
+
+ private:
+  struct Stored {
+    TimePoint time;
+    std::int64_t count;
+    double exposure;
+    double weight;
+  };
+
+  void trim_window(TimePoint latest);
+  void build_design(Eigen::MatrixXd& X, Eigen::VectorXd& y, Eigen::VectorXd& offset,
+                    Eigen::VectorXd& weights) const;
+  glm::FitOptions fit_options() const;
+  double row_for(TimePoint time, double exposure, const double* covariates,
+                 Eigen::Ref<Eigen::RowVectorXd> row) const;
+  std::vector<double> covariates_of(const Observation& obs) const;
+
+  std::string id_;
+  const SeriesSettings* settings_;
+  int p_;  // number of coefficients
+
+  std::optional<TimePoint> origin_;   // first accepted record: trend zero
+  std::deque<Stored> records_;
+  std::deque<double> covariate_values_;  // covariates of records_, flattened (spec order)
+  std::size_t since_refit_ = 0;
+
+  glm::FitResult fit_;
+  bool has_fit_ = false;
+  glm::FitStatus last_fit_status_ = glm::FitStatus::failed;
+  std::string last_fit_note_ = "not fitted yet";
+  std::uint64_t fits_done_ = 0;
+
+  // Reused between refits to avoid reallocating the design.
+  Eigen::MatrixXd X_;
+  Eigen::VectorXd y_, offset_, weights_;
+};
+
+}  // namespace tallyd

@@ -1,0 +1,105 @@
+#include "config/config.h"
+
+#include <catch2/catch.hpp>
+
+using namespace tallyd;
+
+TEST_CASE("a full config fills defaults and per-series rules", "[config]") {
+  const char* text = R"(
+[model]
+family = "negbin"
+link = "sqrt"
+trend = true
+covariates = ["temperature_c"]
+window = { span = "3y", records = 300 }
+min_history = 25
+refit_every = 2
+
+[[model.seasons]]
+period = "1y"
+harmonics = 2
+
+[alert]
+alpha = 0.005
+direction = "high"
+method = "simulate"
+draws = 20000
+seed = 99
+
+[limits]
+max_series = 500
+
+[[series]]
+match = "orchard-s*"
+model.family = "poisson"
+alert.alpha = 0.0005
+)";
+  auto c = parse_config(text, "monitor.toml");
+  REQUIRE(c.ok());
+  const SeriesSettings& d = c->settings.defaults;
+  CHECK(d.model.family == glm::Family::negbin);
+  CHECK(d.model.link == glm::Link::sqrt);
+  CHECK(d.model.trend);
+  CHECK(d.model.covariates == std::vector<std::string>{"temperature_c"});
+  CHECK(d.model.window.span == Seconds{3 * 31557600});
+  CHECK(d.model.window.records == 300u);
+  CHECK(d.model.min_history == 25u);
+  CHECK(d.model.refit_every == 2u);
+  REQUIRE(d.model.seasons.size() == 1);
+  CHECK(d.model.seasons[0].harmonics == 2);
+  CHECK(d.alert.alpha == 0.005);
+  CHECK(d.alert.direction == Direction::high);
+  CHECK(d.alert.method == bounds::Method::simulate);
+  CHECK(d.alert.draws == 20000);
+  CHECK(d.alert.seed == 99u);
+  CHECK(c->limits.max_series == 500u);
+
+  const SeriesSettings& s = c->settings.for_series("orchard-s04");
+  CHECK(s.model.family == glm::Family::poisson);
+  CHECK(s.model.link == glm::Link::sqrt);  // inherited from [model]
+  CHECK(s.alert.alpha == 0.0005);
+  CHECK(c->settings.for_series("orchard-n04").model.family == glm::Family::negbin);
+}
+
+TEST_CASE("window accepts a duration or a record count", "[config]") {
+  auto a = parse_config("[model]\nwindow = \"90d\"\n", "a.toml");
+  REQUIRE(a.ok());
+  CHECK(a->settings.defaults.model.window.span == Seconds{90 * 86400});
+  CHECK_FALSE(a->settings.defaults.model.window.records.has_value());
+  auto b = parse_config("[model]\nwindow = 156\n", "b.toml");
+  REQUIRE(b.ok());
+  CHECK(b->settings.defaults.model.window.records == 156u);
+  CHECK_FALSE(b->settings.defaults.model.window.span.has_value());
+}
+
+TEST_CASE("every config error names the file, the line and the key", "[config]") {
+  struct Case {
+    const char* text;
+    const char* expected;
+  };
+  const Case cases[] = {
+      {"[model]\nfamily = \"poison\"\n", "monitor.toml:2: model.family: 'poison' is not one of"},
+      {"[model]\nlink = \"logit\"\n", "monitor.toml:2: model.link: 'logit' is not one of"},
+      {"[alert]\n\nalpha = 1.5\n", "monitor.toml:3: alert.alpha: must be a number between 0 and 0.5"},
+      {"[alert]\ndirection = \"up\"\n", "monitor.toml:2: alert.direction:"},
+      {"[model]\nfamliy = \"poisson\"\n", "monitor.toml:2: model.famliy: unknown key"},
+      {"[model]\nwindow = \"3 years\"\n", "monitor.toml:2: model.window: duration '3 years'"},
+      {"[[model.seasons]]\nperiod = \"1y\"\nharmonics = 0\n", "monitor.toml:3: model.seasons.harmonics: must be"},
+      {"[[series]]\nmodel.family = \"negbin\"\n", "monitor.toml:1: series[0].match: is required"},
+      {"[model]\ncovariates = [\"count\"]\n", "monitor.toml:2: model.covariates: 'count' is a reserved column"},
+      {"[model\nfamily = 1\n", "monitor.toml:1:"},
+      {"[model]\ntrend = \"yes\"\n", "monitor.toml:2: model.trend: must be true or false"},
+  };
+  for (const Case& c : cases) {
+    auto r = parse_config(c.text, "monitor.toml");
+    INFO(c.text);
+    REQUIRE_FALSE(r.ok());
+    CHECK_THAT(r.error().message, Catch::Contains(c.expected));
+  }
+}
+
+TEST_CASE("a missing config file is an error naming it", "[config]") {
+  auto r = load_config("/nonexistent/monitor.toml");
+  REQUIRE_FALSE(r.ok());
+  CHECK_THAT(r.error().message, Catch::StartsWith("/nonexistent/monitor.toml: cannot open"));
+}
