@@ -1,0 +1,198 @@
+#include "glm/irls.h"
+
+#include <cmath>
+#include <limits>
+
+namespace tallyd::glm {
+namespace {
+
+// mu = g^{-1}(eta); false as soon as one eta gives no usable mean.
+bool means_from(Link link, const Eigen::VectorXd& eta, Eigen::VectorXd& mu) {
+  for (Eigen::Index i = 0; i < eta.size(); ++i) {
+    if (!valid_eta(link, eta(i))) return false;
+    mu(i) = link_inv(link, eta(i));
+  }
+  return true;
+}
+
+// A valid coefficient vector to step back to when the first step from
+// mu = y + 0.1 leaves the valid region and there are no coefficients yet:
+// the constant-mean fit, i.e. a column that is constant and non-zero (an
+// intercept) at g(weighted mean count), the rest 0. False when the design
+// has no such column or the offset makes that fit invalid somewhere.
+bool constant_mean_fit(const Eigen::MatrixXd& X, const Eigen::VectorXd& y,
+                       const Eigen::VectorXd& offset, const Eigen::VectorXd& w, Link link,
+                       Eigen::VectorXd& beta, Eigen::VectorXd& eta, Eigen::VectorXd& mu) {
+  if (X.rows() == 0) return false;
+  for (Eigen::Index j = 0; j < X.cols(); ++j) {
+    const double c = X(0, j);
+    if (c == 0 || (X.col(j).array() != c).any()) continue;
+    beta.setZero();
+    beta(j) = link_fun(link, w.dot(y) / w.sum()) / c;
+    eta.noalias() = X * beta;
+    eta += offset;
+    return std::isfinite(beta(j)) && means_from(link, eta, mu);
+  }
+  return false;
+}
+
+double relative_change(double dev, double dev_old) {
+  return (dev - dev_old) / (std::abs(dev) + 0.1);
+}
+
+// A zero-count record whose eta falls by more than this in the step where
+// the deviance settles is taken to be running off to mu = 0. Under the log
+// link such a record's working response is eta - 1, so a free direction
+// moves it by about 1 per iteration; a genuine optimum moves it by ~0.
+constexpr double kDriftPerIteration = 0.5;
+
+}  // namespace
+
+void sqrt_working_weights(Link link, const Distribution& dist, const Eigen::VectorXd& eta,
+                          const Eigen::VectorXd& mu, const Eigen::VectorXd& w,
+                          Eigen::VectorXd& sqrt_w) {
+  sqrt_w.resize(eta.size());
+  for (Eigen::Index i = 0; i < eta.size(); ++i) {
+    const double d = mu_eta(link, eta(i));
+    sqrt_w(i) = std::sqrt(w(i) * d * d / dist.variance(mu(i)));
+    if (!std::isfinite(sqrt_w(i))) sqrt_w(i) = 0;
+  }
+}
+
+IrlsOutcome run_irls(const Eigen::MatrixXd& X, const Eigen::VectorXd& y,
+                     const Eigen::VectorXd& offset, const Eigen::VectorXd& w,
+                     const IrlsSettings& settings, const Eigen::VectorXd* start_beta,
+                     const Eigen::VectorXd* start_eta, WeightedLeastSquares& wls) {
+  const Eigen::Index n = X.rows();
+  const Eigen::Index p = X.cols();
+  const Link link = settings.link;
+  const Distribution& dist = settings.distribution;
+
+  IrlsOutcome out;
+  // The accepted iterate. `consistent` says whether eta = X beta + offset;
+  // it is false only before the first step when starting from y + 0.1 or
+  // from a given eta.
+  Eigen::VectorXd beta = Eigen::VectorXd::Zero(p);
+  Eigen::VectorXd eta(n);
+  Eigen::VectorXd mu(n);
+  bool consistent = false;
+  bool started = false;
+  if (start_beta != nullptr && start_beta->size() == p && start_beta->allFinite()) {
+    eta.noalias() = X * *start_beta;
+    eta += offset;
+    if (means_from(link, eta, mu)) {
+      beta = *start_beta;
+      consistent = true;
+      started = true;
+    }
+  }
+  if (!started && start_eta != nullptr && start_eta->size() == n) {
+    eta = *start_eta;
+    started = means_from(link, eta, mu);
+  }
+  if (!started) {
+    for (Eigen::Index i = 0; i < n; ++i) {
+      mu(i) = y(i) + 0.1;
+      eta(i) = link_fun(link, mu(i));
+    }
+  }
+  double dev_old = deviance(dist, y, mu, w);
+
+  Eigen::VectorXd z(n);
+  Eigen::VectorXd sqrt_w(n);
+  Eigen::VectorXd beta_new(p);
+  Eigen::VectorXd eta_new(n);
+  Eigen::VectorXd mu_new(n);
+  out.stop = IrlsStop::iteration_limit;
+  for (int iter = 1; iter <= settings.max_iterations; ++iter) {
+    out.iterations = iter;
+    sqrt_working_weights(link, dist, eta, mu, w, sqrt_w);
+    for (Eigen::Index i = 0; i < n; ++i) {
+      z(i) = eta(i) - offset(i) + (y(i) - mu(i)) / mu_eta(link, eta(i));
+      // A mean so small that mu_eta underflows carries no information; R's
+      // glm.fit drops such records from the step ("good" cases) as well.
+      if (!std::isfinite(z(i))) {
+        z(i) = 0;
+        sqrt_w(i) = 0;
+      }
+      if (sqrt_w(i) == 0) z(i) = 0;
+    }
+    if (wls.solve(X, z, sqrt_w, settings.alias_tolerance) == 0) {
+      out.stop = IrlsStop::rank_zero;
+      break;
+    }
+    beta_new = wls.coefficients();
+    eta_new.noalias() = X * beta_new;
+    eta_new += offset;
+    bool valid = means_from(link, eta_new, mu_new);
+    double dev = valid ? deviance(dist, y, mu_new, w) : std::numeric_limits<double>::quiet_NaN();
+    if ((!valid || !std::isfinite(dev)) && !consistent) {
+      // With the sqrt and identity links the first full step from y + 0.1
+      // can put a mean at or below 0, and there are no coefficients to step
+      // back to yet (R's glm.fit stops here and asks for starting values).
+      // Step back towards the constant-mean fit instead, when there is one.
+      if (!constant_mean_fit(X, y, offset, w, link, beta, eta, mu)) {
+        out.stop = IrlsStop::no_valid_step;
+        break;
+      }
+      consistent = true;
+      dev_old = deviance(dist, y, mu, w);
+    }
+
+    // Step-halving towards the previous coefficients. With the sqrt and
+    // identity links a full step can put a mean at or below 0; any link can
+    // overshoot and raise the deviance. The rise is only judged against a
+    // real fit: the deviance at y + 0.1 is near the saturated one and says
+    // nothing about the first step.
+    const auto rises = [&](double d) {
+      return consistent && relative_change(d, dev_old) >= settings.tolerance;
+    };
+    for (int h = 0; h < settings.max_halvings && (!valid || !std::isfinite(dev) || rises(dev));
+         ++h) {
+      beta_new = 0.5 * (beta_new + beta);
+      eta_new.noalias() = X * beta_new;
+      eta_new += offset;
+      valid = means_from(link, eta_new, mu_new);
+      dev = valid ? deviance(dist, y, mu_new, w) : std::numeric_limits<double>::quiet_NaN();
+    }
+    if (!valid || !std::isfinite(dev)) {
+      out.stop = IrlsStop::no_valid_step;
+      break;
+    }
+    if (rises(dev)) {
+      out.stop = IrlsStop::deviance_stuck;
+      break;
+    }
+
+    const bool settled = std::abs(relative_change(dev, dev_old)) < settings.tolerance;
+    if (settled && link == Link::log) {
+      out.drifting_records = 0;
+      out.first_drifting = -1;
+      for (Eigen::Index i = 0; i < n; ++i) {
+        if (y(i) == 0 && eta_new(i) - eta(i) < -kDriftPerIteration) {
+          if (out.first_drifting < 0) out.first_drifting = i;
+          ++out.drifting_records;
+        }
+      }
+    }
+    beta.swap(beta_new);
+    eta.swap(eta_new);
+    mu.swap(mu_new);
+    dev_old = dev;
+    consistent = true;
+    if (settled) {
+      out.stop = IrlsStop::converged;
+      break;
+    }
+  }
+
+  out.has_coefficients = consistent;
+  out.beta = std::move(beta);
+  out.eta = std::move(eta);
+  out.mu = std::move(mu);
+  out.deviance = dev_old;
+  out.rank = wls.rank();
+  return out;
+}
+
+}  // namespace tallyd::glm

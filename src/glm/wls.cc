@@ -1,0 +1,77 @@
+#include "glm/wls.h"
+
+#include <Eigen/Householder>
+
+namespace tallyd::glm {
+
+int WeightedLeastSquares::solve(const Eigen::MatrixXd& X, const Eigen::VectorXd& z,
+                                const Eigen::VectorXd& sqrt_w, double alias_tolerance) {
+  const Eigen::Index n = X.rows();
+  const Eigen::Index p = X.cols();
+  a_.noalias() = sqrt_w.asDiagonal() * X;
+  b_ = sqrt_w.cwiseProduct(z);
+  norms_ = a_.colwise().norm().transpose();
+  work_.resize(p + 1);
+  kept_.clear();
+  aliased_.assign(static_cast<std::size_t>(p), false);
+  const double largest = p > 0 ? norms_.maxCoeff() : 0.0;
+
+  Eigen::Index k = 0;  // reflections applied so far = rank so far
+  for (Eigen::Index j = 0; j < p; ++j) {
+    const double own = norms_(j);
+    if (k >= n || !(own > alias_tolerance * largest)) {
+      aliased_[static_cast<std::size_t>(j)] = true;
+      continue;
+    }
+    const double rest = a_.col(j).segment(k, n - k).norm();
+    if (!(rest > alias_tolerance * own)) {
+      aliased_[static_cast<std::size_t>(j)] = true;
+      continue;
+    }
+    double tau = 0;
+    double beta = 0;
+    a_.col(j).segment(k, n - k).makeHouseholderInPlace(tau, beta);
+    a_(k, j) = beta;
+    if (k + 1 < n) {
+      // The reflector's essential part lives below the diagonal of column j;
+      // it only touches columns to its right, so no copy is needed.
+      if (j + 1 < p) {
+        a_.block(k, j + 1, n - k, p - j - 1)
+            .applyHouseholderOnTheLeft(a_.col(j).segment(k + 1, n - k - 1), tau, work_.data());
+      }
+      b_.segment(k, n - k)
+          .applyHouseholderOnTheLeft(a_.col(j).segment(k + 1, n - k - 1), tau, work_.data());
+    }
+    kept_.push_back(j);
+    ++k;
+  }
+  rank_ = static_cast<int>(k);
+
+  r_.resize(k, k);
+  r_.setZero();
+  for (Eigen::Index c = 0; c < k; ++c) r_.col(c).head(c + 1) = a_.col(kept_[c]).head(c + 1);
+
+  beta_ = Eigen::VectorXd::Zero(p);
+  if (k > 0) {
+    const Eigen::VectorXd kept_beta = r_.triangularView<Eigen::Upper>().solve(b_.head(k));
+    for (Eigen::Index c = 0; c < k; ++c) beta_(kept_[c]) = kept_beta(c);
+  }
+  return rank_;
+}
+
+Eigen::MatrixXd WeightedLeastSquares::unscaled_covariance() const {
+  const Eigen::Index p = beta_.size();
+  const Eigen::Index k = rank_;
+  Eigen::MatrixXd cov = Eigen::MatrixXd::Zero(p, p);
+  if (k == 0) return cov;
+  // (X'WX)^{-1} = (R'R)^{-1} = R^{-1} R^{-T}
+  const Eigen::MatrixXd r_inv =
+      r_.triangularView<Eigen::Upper>().solve(Eigen::MatrixXd::Identity(k, k));
+  const Eigen::MatrixXd kept_cov = r_inv * r_inv.transpose();
+  for (Eigen::Index c = 0; c < k; ++c) {
+    for (Eigen::Index d = 0; d < k; ++d) cov(kept_[c], kept_[d]) = kept_cov(c, d);
+  }
+  return cov;
+}
+
+}  // namespace tallyd::glm
