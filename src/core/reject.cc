@@ -15,6 +15,7 @@ std::string_view reject_label(RejectReason reason) {
     case RejectReason::bad_format: return "bad_format";
     case RejectReason::out_of_order: return "out_of_order";
     case RejectReason::too_many_series: return "too_many_series";
+    case RejectReason::read_error: return "read_error";
   }
   return "unknown";
 }

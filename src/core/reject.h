@@ -23,9 +23,10 @@ enum class RejectReason : std::uint8_t {
   bad_format,         // wrong number of columns, broken JSON, bad header
   out_of_order,       // older than (or as old as) the newest record of its series
   too_many_series,    // a new series id beyond the configured series limit
+  read_error,         // the source failed to read (I/O error); what follows in it is lost
 };
 
-inline constexpr std::size_t kRejectReasonCount = 11;
+inline constexpr std::size_t kRejectReasonCount = 12;
 
 // Stable snake_case label used in logs, JSON and metrics.
 std::string_view reject_label(RejectReason reason);

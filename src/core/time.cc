@@ -1,7 +1,9 @@
 #include "core/time.h"
 
 #include <charconv>
+#include <cmath>
 #include <cstdint>
+#include <cstdio>
 
 namespace tallyd {
 namespace {
@@ -27,9 +29,27 @@ bool expect(std::string_view s, std::size_t& pos, char c) {
   return false;
 }
 
+// Quotes at most 40 bytes of `text`; anything but printable ASCII is shown as
+// \xNN so that junk from a feed cannot break a log line.
+std::string shown_text(std::string_view text) {
+  constexpr std::size_t kMaxShown = 40;
+  std::string out;
+  for (std::size_t i = 0; i < text.size() && i < kMaxShown; ++i) {
+    unsigned char c = static_cast<unsigned char>(text[i]);
+    if (c >= 0x20 && c < 0x7F) {
+      out += static_cast<char>(c);
+    } else {
+      char hex[8];
+      std::snprintf(hex, sizeof hex, "\\x%02X", c);
+      out += hex;
+    }
+  }
+  if (text.size() > kMaxShown) out += "...";
+  return out;
+}
+
 Error time_error(std::string_view text, std::string_view why) {
-  std::string shown(text.substr(0, 60));
-  return Error{"time '" + shown + "' " + std::string(why) +
+  return Error{"time '" + shown_text(text) + "' " + std::string(why) +
                " (want RFC 3339 like 2025-06-01T06:00:00Z, or epoch seconds)"};
 }
 
@@ -97,7 +117,13 @@ Result<TimePoint> parse_time(std::string_view text) {
   using namespace std::chrono;
   year_month_day ymd{year{y}, month{static_cast<unsigned>(mo)}, day{static_cast<unsigned>(d)}};
   if (!ymd.ok()) return time_error(text, "is not a calendar date");
-  if (ss == 60) ss = 59;  // POSIX time has no leap seconds
+  if (ss == 60) {
+    // A leap second can only be the last second of a UTC day; POSIX time has
+    // no leap seconds, so it is folded into the second before it.
+    int utc_minute_of_day = ((hh * 60 + mm - offset_minutes) % 1440 + 1440) % 1440;
+    if (utc_minute_of_day != 23 * 60 + 59) return time_error(text, "has second 60 outside a leap second");
+    ss = 59;
+  }
   sys_seconds t = sys_days{ymd} + hours{hh} + minutes{mm} + seconds{ss} - minutes{offset_minutes};
   return t;
 }
@@ -142,7 +168,13 @@ Result<Seconds> parse_duration(std::string_view text) {
       default: return fail("has an unknown unit");
     }
     ++pos;
-    total += static_cast<std::int64_t>(value * unit + 0.5);
+    // Bound each part and the sum well inside int64 before converting: a
+    // double beyond the range of the target type makes the cast undefined.
+    constexpr double kMaxSeconds = 1e15;  // about 31.7 million years
+    double part = std::round(value * unit);
+    if (!(part <= kMaxSeconds) || static_cast<double>(total) + part > kMaxSeconds)
+      return fail("is too long");
+    total += static_cast<std::int64_t>(part);
   }
   if (total <= 0) return fail("must be positive");
   return Seconds{total};

@@ -18,6 +18,7 @@ inline constexpr double kDaysPerYear = 365.25;  // a model year, as used for tre
 
 // Parses an RFC 3339 date-time ("2025-06-01T06:00:00Z", "2025-06-01T08:00:00+02:00",
 // fractional seconds are truncated) or integer epoch seconds ("1748757600").
+// Second 60 (a leap second) is accepted only at 23:59 UTC and read as second 59.
 // A lowercase 't'/'z' or a space between date and time is accepted (RFC 3339 §5.6 NOTE).
 // Fails with a message quoting the text when it is neither.
 Result<TimePoint> parse_time(std::string_view text);
@@ -26,7 +27,8 @@ Result<TimePoint> parse_time(std::string_view text);
 std::string format_time(TimePoint t);
 
 // Parses a duration: a number followed by a unit, s, m (minutes), h, d, w, y
-// (365.25 days). Several parts may be joined: "1d12h". Fails on anything else.
+// (365.25 days). Several parts may be joined: "1d12h". Rounds to whole seconds.
+// Fails on anything else, on a total of 0, and beyond 1e15 seconds.
 Result<Seconds> parse_duration(std::string_view text);
 
 // "7d", "1y", "90m": the shortest exact spelling.

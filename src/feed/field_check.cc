@@ -1,0 +1,195 @@
+#include "feed/field_check.h"
+
+#include <fast_float/fast_float.h>
+
+#include <charconv>
+#include <cmath>
+#include <cstdio>
+
+#include "feed/utf8.h"
+
+namespace tallyd {
+namespace {
+
+constexpr std::size_t kMaxQuotedBytes = 40;
+
+// Doubles hold every integer exactly only up to 2^53.
+constexpr double kMaxExactWhole = 9007199254740992.0;
+
+enum class Number : std::uint8_t { ok, not_a_number, not_finite };
+
+// The whole of `text` as a double (no blanks, no leading '+'). "nan", "inf"
+// and values beyond the range of a double ("1e999") are not_finite.
+Number parse_real(std::string_view text, double& value) {
+  if (text.empty()) return Number::not_a_number;
+  const char* end = text.data() + text.size();
+  auto [ptr, ec] = fast_float::from_chars(text.data(), end, value);
+  if (ec != std::errc() || ptr != end) return Number::not_a_number;
+  return std::isfinite(value) ? Number::ok : Number::not_finite;
+}
+
+// True when `text` spells NaN or infinity as a word rather than overflowing.
+bool is_word(std::string_view text) { return text.find_first_of("nNiI") != std::string_view::npos; }
+
+enum class Whole : std::uint8_t { ok, not_a_number, not_whole, too_large };
+
+// A whole number in integer, decimal or exponent form, as int64.
+Whole parse_whole(std::string_view text, std::int64_t& out) {
+  if (text.empty()) return Whole::not_a_number;
+  const char* end = text.data() + text.size();
+  auto [ptr, ec] = std::from_chars(text.data(), end, out);
+  if (ptr == end) return ec == std::errc() ? Whole::ok : Whole::too_large;
+  double value = 0;
+  switch (parse_real(text, value)) {
+    case Number::ok: break;
+    case Number::not_a_number: return Whole::not_a_number;
+    case Number::not_finite: return is_word(text) ? Whole::not_a_number : Whole::too_large;
+  }
+  if (value != std::floor(value)) return Whole::not_whole;
+  if (std::fabs(value) >= kMaxExactWhole) return Whole::too_large;
+  out = static_cast<std::int64_t>(value);
+  return Whole::ok;
+}
+
+FieldFault fault(RejectReason reason, std::string detail) { return FieldFault{reason, std::move(detail)}; }
+
+// True when the digits before any exponent are not all zero.
+bool has_nonzero_mantissa(std::string_view text) {
+  for (char c : text) {
+    if (c == 'e' || c == 'E') break;
+    if (c >= '1' && c <= '9') return true;
+  }
+  return false;
+}
+
+}  // namespace
+
+std::string quote_value(std::string_view text) {
+  std::string out = "'";
+  std::size_t pos = 0;
+  while (pos < text.size()) {
+    const unsigned char c = static_cast<unsigned char>(text[pos]);
+    std::size_t length = 1;
+    if (c >= 0x80) length = utf8_sequence_length(text, pos);
+    if (pos + (length == 0 ? 1 : length) > kMaxQuotedBytes) break;
+    if (c >= 0x20 && c < 0x7F) {
+      out += static_cast<char>(c);
+    } else if (length > 1) {
+      out.append(text.substr(pos, length));
+    } else {
+      char hex[8];
+      std::snprintf(hex, sizeof hex, "\\x%02X", c);
+      out += hex;
+      length = 1;
+    }
+    pos += length;
+  }
+  if (pos < text.size()) out += "...";
+  out += "'";
+  return out;
+}
+
+std::string_view trim_blanks(std::string_view text) {
+  std::size_t b = 0, e = text.size();
+  while (b < e && (text[b] == ' ' || text[b] == '\t')) ++b;
+  while (e > b && (text[e - 1] == ' ' || text[e - 1] == '\t')) --e;
+  return text.substr(b, e - b);
+}
+
+bool is_blank_or_comment(std::string_view line) {
+  std::string_view t = trim_blanks(line);
+  return t.empty() || t.front() == '#';
+}
+
+FieldCheck check_series(std::string_view text) {
+  if (trim_blanks(text).empty()) return fault(RejectReason::bad_series, "series id is empty");
+  if (const std::size_t bad = utf8_error_offset(text); bad != std::string_view::npos)
+    return fault(RejectReason::bad_format, "series id " + quote_value(text) + " is not valid UTF-8 (byte " +
+                                               std::to_string(bad + 1) + ")");
+  for (char ch : text) {
+    const unsigned char c = static_cast<unsigned char>(ch);
+    if (c < 0x20 || c == 0x7F)
+      return fault(RejectReason::bad_format, "series id " + quote_value(text) + " contains a control character");
+  }
+  return std::nullopt;
+}
+
+FieldCheck read_time(std::string_view text, TimePoint& time) {
+  Result<TimePoint> parsed = parse_time(text);
+  if (!parsed) return fault(RejectReason::bad_time, parsed.error().message);
+  time = *parsed;
+  return std::nullopt;
+}
+
+FieldCheck read_epoch_number(std::string_view number_text, TimePoint& time) {
+  std::int64_t seconds = 0;
+  switch (parse_whole(number_text, seconds)) {
+    case Whole::ok: time = TimePoint{Seconds{seconds}}; return std::nullopt;
+    case Whole::not_a_number:
+      return fault(RejectReason::bad_time, "time " + quote_value(number_text) + " is not a number");
+    case Whole::not_whole:
+      return fault(RejectReason::bad_time,
+                   "time " + quote_value(number_text) + " is not a whole number of epoch seconds");
+    case Whole::too_large:
+      return fault(RejectReason::bad_time, "time " + quote_value(number_text) + " is out of range");
+  }
+  return fault(RejectReason::bad_time, "time " + quote_value(number_text) + " is not a number");
+}
+
+FieldCheck read_count(std::string_view text, std::int64_t& count) {
+  if (text.empty()) return fault(RejectReason::bad_count, "count is empty");
+  std::int64_t n = 0;
+  const Whole w = parse_whole(text, n);
+  // A negative value is reported as such even when it is also fractional.
+  if (w != Whole::not_a_number && text.front() == '-' && has_nonzero_mantissa(text))
+    return fault(RejectReason::bad_count, "count " + quote_value(text) + " is negative");
+  switch (w) {
+    case Whole::ok: count = n; return std::nullopt;  // negatives were refused above; "-0" is 0
+    case Whole::not_a_number:
+      return fault(RejectReason::bad_count, "count " + quote_value(text) + " is not a number");
+    case Whole::not_whole:
+      return fault(RejectReason::bad_count, "count " + quote_value(text) + " is not a whole number");
+    case Whole::too_large:
+      return fault(RejectReason::bad_count, "count " + quote_value(text) + " is too large");
+  }
+  return fault(RejectReason::bad_count, "count " + quote_value(text) + " is not a number");
+}
+
+FieldCheck read_exposure(std::string_view text, double& exposure) {
+  if (text.empty()) {
+    exposure = 1.0;
+    return std::nullopt;
+  }
+  double value = 0;
+  switch (parse_real(text, value)) {
+    case Number::ok: break;
+    case Number::not_a_number:
+      return fault(RejectReason::bad_exposure, "exposure " + quote_value(text) + " is not a number");
+    case Number::not_finite:
+      return fault(RejectReason::bad_exposure, "exposure " + quote_value(text) + " is not finite");
+  }
+  if (value < 0) return fault(RejectReason::bad_exposure, "exposure " + quote_value(text) + " is negative");
+  if (value == 0) {
+    if (has_nonzero_mantissa(text))
+      return fault(RejectReason::bad_exposure, "exposure " + quote_value(text) + " is too small to represent");
+    return fault(RejectReason::zero_exposure, "exposure " + quote_value(text) + " is zero: no effort to judge");
+  }
+  exposure = value;
+  return std::nullopt;
+}
+
+FieldCheck read_covariate(std::string_view name, std::string_view text, double& value) {
+  double v = 0;
+  switch (parse_real(text, v)) {
+    case Number::ok: value = v; return std::nullopt;
+    case Number::not_a_number: break;
+    case Number::not_finite:
+      return fault(RejectReason::bad_covariate,
+                   "covariate " + quote_value(name) + " value " + quote_value(text) + " is not finite");
+  }
+  return fault(RejectReason::bad_covariate,
+               "covariate " + quote_value(name) + " value " + quote_value(text) + " is not a number");
+}
+
+}  // namespace tallyd
+
