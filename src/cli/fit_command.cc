@@ -72,20 +72,20 @@ class FitCommand final : public Command {
  private:
   // Collects the chosen series' records (all feeds merged by time).
   int read_series() {
-    auto feeds = feed::FeedSet::open(feeds_, feed::ReadOptions{});
+    auto feeds = FeedSet::open(feeds_, ReadOptions{});
     if (!feeds) {
       spdlog::error("{}", feeds.error().message);
       return kExitData;
     }
     std::set<std::string> seen;
-    feed::FeedItem item;
+    FeedItem item;
     std::uint64_t rejected = 0;
     while (feeds->next(item)) {
-      if (const Rejection* bad = std::get_if<Rejection>(&item)) {
-        if (++rejected <= 5) spdlog::warn("{}", bad->describe());
+      if (!item.is_record()) {
+        if (++rejected <= 5) spdlog::warn("{}", item.rejection().describe());
         continue;
       }
-      Observation& obs = std::get<Observation>(item);
+      Observation& obs = item.record();
       if (series_.empty() || obs.series == series_) {
         if (series_.empty() && !records_.empty() && obs.series != records_.front().series) {
           seen.insert(obs.series);

@@ -44,9 +44,9 @@ class ReplayCommand final : public Command {
       config = std::move(loaded).value();
     }
 
-    feed::ReadOptions read_options;
+    ReadOptions read_options;
     read_options.max_line_bytes = max_line_bytes_;
-    auto feeds = feed::FeedSet::open(feeds_, read_options);
+    auto feeds = FeedSet::open(feeds_, read_options);
     if (!feeds) {
       spdlog::error("{}", feeds.error().message);
       return kExitData;

@@ -6,16 +6,17 @@
 
 namespace tallyd {
 
-std::uint64_t replay_feeds(feed::FeedSet& feeds, Engine& engine, const ReplayOutputs& out) {
+std::uint64_t replay_feeds(FeedSet& feeds, Engine& engine, const ReplayOutputs& out) {
   std::uint64_t written = 0;
-  feed::FeedItem item;
+  FeedItem item;
   while (feeds.next(item)) {
-    if (const Rejection* bad = std::get_if<Rejection>(&item)) {
+    if (!item.is_record()) {
+      const Rejection* bad = &item.rejection();
       engine.count_rejection(bad->reason);
       if (out.on_rejection) out.on_rejection(*bad);
       continue;
     }
-    const Observation& obs = std::get<Observation>(item);
+    const Observation& obs = item.record();
     IngestResult r = engine.ingest(obs);
     if (r.rejection) {
       if (out.on_rejection) out.on_rejection(*r.rejection);

@@ -23,7 +23,7 @@ struct ReplayOutputs {
 
 // Feeds every item of `feeds` through `engine` in merged time order and
 // writes each alert as it is raised. Returns the number of alerts written.
-std::uint64_t replay_feeds(feed::FeedSet& feeds, Engine& engine, const ReplayOutputs& out);
+std::uint64_t replay_feeds(FeedSet& feeds, Engine& engine, const ReplayOutputs& out);
 
 // "1234 records: 1100 judged, 100 warming up, 34 rejected (bad_count 3, ...); 12 alerts (10 high, 2 low); 24 series"
 std::string describe_counters(const EngineCounters& c, std::size_t series_count);

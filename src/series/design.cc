@@ -25,7 +25,7 @@ int coefficient_count(const ModelSpec& spec) {
   return p;
 }
 
-double design_row(const ModelSpec& spec, const DesignInput& in, Eigen::Ref<Eigen::RowVectorXd> row) {
+double design_row(const ModelSpec& spec, const DesignInput& in, RowRef row) {
   int j = 0;
   row(j++) = 1.0;
   if (spec.trend) row(j++) = years_between(in.origin, in.time);

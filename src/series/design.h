@@ -20,6 +20,9 @@
 
 namespace tallyd {
 
+// A writable design row: a plain row vector or a row of a column-major matrix.
+using RowRef = Eigen::Ref<Eigen::RowVectorXd, 0, Eigen::InnerStride<>>;
+
 // Column names: "intercept", "trend", "season_1y_sin1", "season_1y_cos1", ..., covariate names.
 std::vector<std::string> coefficient_names(const ModelSpec& spec);
 
@@ -34,6 +37,6 @@ struct DesignInput {
 };
 
 // Writes the row into `row` (resized to coefficient_count) and returns the offset.
-double design_row(const ModelSpec& spec, const DesignInput& in, Eigen::Ref<Eigen::RowVectorXd> row);
+double design_row(const ModelSpec& spec, const DesignInput& in, RowRef row);
 
 }  // namespace tallyd

@@ -39,7 +39,7 @@ std::vector<double> SeriesModel::covariates_of(const Observation& obs) const {
 }
 
 double SeriesModel::row_for(TimePoint time, double exposure, const double* covariates,
-                            Eigen::Ref<Eigen::RowVectorXd> row) const {
+                            RowRef row) const {
   DesignInput in{time, origin_.value_or(time), exposure, covariates};
   return design_row(settings_->model, in, row);
 }

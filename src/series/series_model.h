@@ -20,6 +20,7 @@
 #include "bounds/predictive.h"
 #include "core/observation.h"
 #include "glm/fit.h"
+#include "series/design.h"
 #include "series/model_spec.h"
 
 namespace tallyd {
@@ -84,7 +85,7 @@ class SeriesModel {
                     Eigen::VectorXd& weights) const;
   glm::FitOptions fit_options() const;
   double row_for(TimePoint time, double exposure, const double* covariates,
-                 Eigen::Ref<Eigen::RowVectorXd> row) const;
+                 RowRef row) const;
   std::vector<double> covariates_of(const Observation& obs) const;
 
   std::string id_;
