@@ -1,0 +1,51 @@
+#include "bounds/predictive.h"
+
+#include <algorithm>
+#include <cmath>
+#include <limits>
+
+#include "bounds/count_noise.h"
+#include "bounds/quadrature.h"
+#include "bounds/simulate.h"
+
+namespace tallyd::bounds {
+
+std::string_view to_string(Method m) {
+  switch (m) {
+    case Method::simulate: return "simulate";
+    case Method::quadrature: return "quadrature";
+  }
+  return "quadrature";
+}
+
+std::optional<Method> parse_method(std::string_view text) {
+  if (text == "simulate") return Method::simulate;
+  if (text == "quadrature") return Method::quadrature;
+  return std::nullopt;
+}
+
+Bounds evaluate(const Predictor& predictor, const CountNoise& noise, std::int64_t observed,
+                const Options& options, Rng* rng) {
+  if (!std::isfinite(predictor.eta_mean) || !std::isfinite(predictor.eta_variance) || std::isnan(options.alpha)) {
+    // Nothing can be said about this record; bounds that flag nothing.
+    Bounds none;
+    none.expected = std::numeric_limits<double>::quiet_NaN();
+    none.lower = 0;
+    none.upper = std::numeric_limits<std::int64_t>::max();
+    none.p_high = 1;
+    none.p_low = 1;
+    return none;
+  }
+  Predictor p = predictor;
+  p.eta_variance = std::max(p.eta_variance, 0.0);  // x'Cx can come out a hair below 0
+  const double alpha = std::clamp(options.alpha, 1e-300, 0.5);
+  // Counts beyond 2^53 are judged as 2^53, where the distribution is censored.
+  observed = std::min(observed, kMaxCount);
+
+  if (options.method == Method::simulate && rng != nullptr) {
+    return simulate_bounds(p, noise, observed, options.draws, alpha, *rng);
+  }
+  return quadrature_bounds(p, noise, observed, options.quadrature_nodes, alpha);
+}
+
+}  // namespace tallyd::bounds

@@ -1,0 +1,33 @@
+// Internal to bounds: evaluate() by Gauss-Hermite quadrature.
+//
+// The predictive distribution is the finite mixture sum_i w_i NoiseAt(mu_i)
+// with mu_i = g^{-1}(eta_mean + sqrt(2 eta_variance) x_i) over the
+// Hermite nodes x_i (one node when eta_variance == 0). Its CDF is evaluated
+// two ways: a "probe" at any count k (one Boost.Math tail per component),
+// and a step from k to k +/- 1 by the pmf recurrences of Poisson and NB2
+// (a multiply-add per component). Each bound is found by probing at a
+// starting guess (Cornish-Fisher, blended with a normal on the eta scale),
+// bracketing by galloping and probit-scale interpolation, and stepping from
+// the tail side towards the centre, so that the tail probability is a
+// growing sum of positive terms (no cancellation). A probe whose component
+// pmfs underflowed is stepped from only as far as those components provably
+// stay negligible. The p-values for the observed count come from continuing
+// the nearer step sequence when the count lies between the bounds, otherwise
+// from one probe at it. Finally each p-value is kept on the side of alpha
+// that the bounds imply, which the true (monotone) CDF guarantees and only
+// rounding could break. The rule's own accuracy limit: see predictive.h.
+#pragma once
+
+#include <cstdint>
+
+#include "bounds/predictive.h"
+
+namespace tallyd::bounds {
+
+// Preconditions (checked by evaluate): eta_mean and eta_variance finite,
+// eta_variance >= 0, alpha in [1e-300, 0.5], observed <= 2^53. nodes is
+// clamped to [1, kMaxHermiteNodes].
+Bounds quadrature_bounds(const Predictor& predictor, const CountNoise& noise, std::int64_t observed,
+                         int nodes, double alpha);
+
+}  // namespace tallyd::bounds

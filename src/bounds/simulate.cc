@@ -1,0 +1,86 @@
+#include "bounds/simulate.h"
+
+#include <algorithm>
+#include <cmath>
+#include <vector>
+
+#include "bounds/count_noise.h"
+
+namespace tallyd::bounds {
+namespace {
+
+std::int64_t draw_count(const NoiseAt& d, Rng& rng) {
+  if (d.at_zero) return 0;
+  if (d.poisson) return rng.poisson(d.mu);
+  return rng.negbin(d.mu, d.size);
+}
+
+// The order statistic y_(index) (0-based) of `y`, leaving `y` partitioned
+// around it; `done` is an index already placed by an earlier selection,
+// which splits the search range.
+std::int64_t select(std::vector<std::int64_t>& y, std::size_t index, std::size_t done) {
+  auto first = y.begin();
+  auto last = y.end();
+  if (done < y.size()) {
+    if (index == done) return y[index];
+    if (index > done) first = y.begin() + static_cast<std::ptrdiff_t>(done) + 1;
+    else last = y.begin() + static_cast<std::ptrdiff_t>(done);
+  }
+  std::nth_element(first, y.begin() + static_cast<std::ptrdiff_t>(index), last);
+  return y[index];
+}
+
+}  // namespace
+
+Bounds simulate_bounds(const Predictor& predictor, const CountNoise& noise, std::int64_t observed,
+                       int draws, double alpha, Rng& rng) {
+  const std::size_t n = static_cast<std::size_t>(std::max(draws, 1));
+  const double n_real = static_cast<double>(n);
+  const double sd = std::sqrt(predictor.eta_variance);
+  std::vector<std::int64_t> y(n);
+  Bounds b;
+
+  if (sd == 0) {
+    const NoiseAt d = noise_at(noise, mean_from_eta(noise.link, predictor.eta_mean));
+    for (std::int64_t& v : y) v = draw_count(d, rng);
+    b.expected = d.at_zero ? 0 : d.mu;
+  } else {
+    double sum_mu = 0;
+    for (std::int64_t& v : y) {
+      const double mu = mean_from_eta(noise.link, predictor.eta_mean + sd * rng.normal());
+      const NoiseAt d = noise_at(noise, mu);
+      v = draw_count(d, rng);
+      sum_mu += d.at_zero ? 0 : d.mu;
+    }
+    b.expected = sum_mu / n_real;
+  }
+
+  // All tail probabilities are count / n with this one expression, and
+  // `tail` is the largest count whose fraction is <= alpha. Division by a
+  // fixed n is monotone, so "count <= tail" and "count / n <= alpha" are
+  // the same test: that is what makes the bounds and p-values agree exactly.
+  const auto fraction = [n_real](std::size_t count) { return static_cast<double>(count) / n_real; };
+  std::size_t tail = static_cast<std::size_t>(std::floor(alpha * n_real));
+  while (tail + 1 < n && fraction(tail + 1) <= alpha) ++tail;
+  while (tail > 0 && fraction(tail) > alpha) --tail;
+  // alpha <= 0.5 keeps tail <= n / 2 < n.
+
+  std::size_t at_most = 0;  // #(y <= observed)
+  std::size_t at_least = 0;  // #(y >= observed)
+  for (const std::int64_t v : y) {
+    at_most += v <= observed;
+    at_least += v >= observed;
+  }
+  b.p_low = fraction(at_most);
+  b.p_high = fraction(at_least);
+
+  // lower = y_(tail): #(y <= l) >= tail + 1 exactly when l >= y_(tail).
+  // upper = y_(n - 1 - tail): #(y > u) <= tail exactly when u >= that order statistic.
+  const std::size_t lower_index = tail;
+  const std::size_t upper_index = n - 1 - tail;
+  b.lower = select(y, lower_index, n);
+  b.upper = select(y, upper_index, lower_index);
+  return b;
+}
+
+}  // namespace tallyd::bounds
