@@ -3,8 +3,14 @@
 // Engine::ingest over it, once per bounds method.
 //
 //   build/replay_bench [--series N] [--days D] [--window W] [--draws K] [--refit-every R]
+//                      [--workers T] [--method quadrature|simulate|both]
 //
 // Prints one row per method: records, seconds, records/s, judged, alerts.
+// With --workers T > 1 the series are sharded over T threads
+// (engine/sharded_engine.h), fed in batches of one day of records; the row
+// for T = 1 (plain Engine, one record at a time) is printed first in the
+// same run, so the speed-up is a ratio measured side by side.
+#include <algorithm>
 #include <chrono>
 #include <cmath>
 #include <cstdio>
@@ -15,6 +21,7 @@
 
 #include "bounds/random.h"
 #include "engine/engine.h"
+#include "engine/sharded_engine.h"
 
 using namespace tallyd;
 
@@ -26,17 +33,28 @@ struct Args {
   std::size_t window = 365;
   int draws = 10000;
   std::size_t refit_every = 1;
+  int workers = 1;
+  std::string method = "both";
 };
 
 Args parse_args(int argc, char** argv) {
   Args a;
   for (int i = 1; i + 1 < argc; i += 2) {
     const std::string k = argv[i];
+    if (k == "--method") {
+      a.method = argv[i + 1];
+      if (a.method != "both" && !bounds::parse_method(a.method)) {
+        std::fprintf(stderr, "--method must be quadrature, simulate or both\n");
+        std::exit(1);
+      }
+      continue;
+    }
     const long v = std::strtol(argv[i + 1], nullptr, 10);
     if (k == "--series") a.series = static_cast<int>(v);
     else if (k == "--days") a.days = static_cast<int>(v);
     else if (k == "--window") a.window = static_cast<std::size_t>(v);
     else if (k == "--draws") a.draws = static_cast<int>(v);
+    else if (k == "--workers") a.workers = static_cast<int>(v);
     else if (k == "--refit-every") a.refit_every = static_cast<std::size_t>(v);
     else {
       std::fprintf(stderr, "unknown option %s\n", argv[i]);
@@ -85,6 +103,39 @@ SettingsTable bench_settings(const Args& a, bounds::Method method) {
   return t;
 }
 
+struct Row {
+  double seconds;
+  EngineCounters counters;
+};
+
+Row run_single(const std::vector<Observation>& feed, const SettingsTable& settings) {
+  Engine engine(settings);
+  const auto t0 = std::chrono::steady_clock::now();
+  for (const Observation& o : feed) engine.ingest(o);
+  return {std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count(), engine.counters()};
+}
+
+Row run_sharded(const std::vector<Observation>& feed, const SettingsTable& settings, int workers, int series) {
+  ShardedEngine engine(settings, workers);
+  double seconds = 0;
+  std::vector<Observation> batch;
+  for (std::size_t from = 0; from < feed.size(); from += static_cast<std::size_t>(series)) {
+    // Copying the batch out is not timed: a service hands out its own buffers.
+    const std::size_t to = std::min(feed.size(), from + static_cast<std::size_t>(series));
+    batch.assign(feed.begin() + static_cast<long>(from), feed.begin() + static_cast<long>(to));
+    const auto t0 = std::chrono::steady_clock::now();
+    engine.ingest_batch(batch);
+    seconds += std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+  }
+  return {seconds, engine.counters()};
+}
+
+void print_row(const char* method, int workers, std::size_t records, const Row& r) {
+  std::printf("%-11s %7d %10zu %10.2f %12.0f %10llu %8llu\n", method, workers, records, r.seconds,
+              static_cast<double>(records) / r.seconds, static_cast<unsigned long long>(r.counters.judged),
+              static_cast<unsigned long long>(r.counters.alerts_high + r.counters.alerts_low));
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -92,17 +143,23 @@ int main(int argc, char** argv) {
   const std::vector<Observation> feed = make_feed(a);
   std::printf("feed: %d series x %d days = %zu records; window %zu records; refit every %zu; draws %d\n", a.series,
               a.days, feed.size(), a.window, a.refit_every, a.draws);
-  std::printf("%-11s %10s %10s %12s %10s %8s\n", "method", "records", "seconds", "records/s", "judged", "alerts");
+  std::printf("%-11s %7s %10s %10s %12s %10s %8s\n", "method", "threads", "records", "seconds", "records/s", "judged",
+              "alerts");
   for (bounds::Method method : {bounds::Method::quadrature, bounds::Method::simulate}) {
+    if (a.method != "both" && bounds::parse_method(a.method) != method) continue;
     const SettingsTable settings = bench_settings(a, method);
-    Engine engine(settings);
-    const auto t0 = std::chrono::steady_clock::now();
-    for (const Observation& o : feed) engine.ingest(o);
-    const double secs = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
-    const EngineCounters& c = engine.counters();
-    std::printf("%-11s %10zu %10.2f %12.0f %10llu %8llu\n", std::string(bounds::to_string(method)).c_str(),
-                feed.size(), secs, feed.size() / secs, static_cast<unsigned long long>(c.judged),
-                static_cast<unsigned long long>(c.alerts_high + c.alerts_low));
+    const std::string name(bounds::to_string(method));
+    const Row one = run_single(feed, settings);
+    print_row(name.c_str(), 1, feed.size(), one);
+    if (a.workers > 1) {
+      const Row many = run_sharded(feed, settings, a.workers, a.series);
+      print_row(name.c_str(), a.workers, feed.size(), many);
+      std::printf("speed-up %d threads / 1: %.2fx; alerts %s\n", a.workers, one.seconds / many.seconds,
+                  one.counters.alerts_high == many.counters.alerts_high &&
+                          one.counters.alerts_low == many.counters.alerts_low
+                      ? "identical counts"
+                      : "DIFFER");
+    }
   }
   return 0;
 }

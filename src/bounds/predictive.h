@@ -24,22 +24,33 @@
 //     means cost more: ~40 us at mu = 1e3, ~200 us at 1e5.
 //   simulate: O(draws); 10,000 draws ~0.5 ms (Poisson) to ~1.2 ms (NB2).
 //
-// Accuracy of the quadrature over eta*. Gauss-Hermite samples eta* at fixed
-// nodes; each node carries a count distribution whose width on the eta
-// scale is the noise's (log link, Poisson: 1/sqrt(count)). When that width
-// is small next to the node spacing the rule cannot resolve the mixture.
-// With rho = sqrt(eta_variance * upper) (log link, Poisson; generally
-// sd(eta*) over the noise sd on the eta scale at the bound), the relative
-// error of tail probabilities at the bounds with 48 nodes, measured against
-// a fine trapezoid rule, is:
-//     rho <~ 1.8: < 1e-10     rho ~ 2-3: 1e-8 - 1e-5
-//     rho ~ 3.5-4.5: 1e-4 - 5e-3     rho >~ 5: 1% - 90%
-// (96 nodes move each band up by about one unit of rho.) At large rho the
-// quadrature mixture is a comb of separate bumps, one per node. Large
-// counts reach that regime with modest parameter uncertainty (mean 2000,
-// eta_variance 0.02: ~9% at alpha 1e-3); simulation has no such limit.
-// The sqrt and identity links clamp mu at 0, a kink the rule also resolves
-// poorly when eta* has mass near 0.
+// Accuracy of the quadrature over eta*. Each value of eta* carries a count
+// distribution whose width on the eta scale is the noise's (log link,
+// Poisson: 1/sqrt(count)). Let rho = sd(eta*) / that width at the counts
+// that matter (both bounds; log link, Poisson:
+// rho ~ sqrt(eta_variance * upper)). Gauss-Hermite samples eta* at fixed
+// nodes, and once the noise is narrow next to their spacing the mixture
+// becomes a comb of separate bumps: with 48 nodes the relative error of the
+// tails at the bounds was < 1e-10 for rho <~ 1.8 but 1% - 90% for rho >~ 5
+// (mean 2000, eta_variance 0.02: 9% at alpha 1e-3). So the rule is chosen
+// per call (quadrature.h, choose_rule):
+//   rho <= 1.5: Gauss-Hermite with quadrature_nodes nodes;
+//   rho >  1.5: a trapezoid grid in eta over +-12 sd(eta*) with 3 steps per
+//     min(sd(eta*), noise width), i.e. ~72 max(1, rho) nodes, at most 16384.
+// The count pmfs and CDFs are smooth (analytic) functions of eta, so the
+// trapezoid rule on this Gaussian-weighted integrand converges
+// geometrically in 1/step; tested against Boost.Math's adaptive
+// Gauss-Kronrod at rho ~ 4-16 to 1e-8 relative (tests/bounds/quadrature_test.cc)
+// and against simulation at 10^6 draws. Cost grows with rho: each probe is
+// one Boost.Math tail per node (~0.1-1 us each). Limits: the step follows
+// the noise at the bounds, so p-values of counts far beyond them (narrower
+// noise still) lose relative accuracy, though never their side of alpha,
+// which the bounds settle; past 16384 nodes
+// (rho >~ 227, e.g. mean 2.6e6 with eta_variance 0.02) the step widens and
+// the error is no longer negligible; Gaussian mass beyond 12 sd (~4e-33) is
+// dropped, so p-values far below that lose relative accuracy; the sqrt and
+// identity links clamp mu at 0, a kink either rule resolves poorly when
+// eta* has mass near 0. Simulation has none of these limits.
 #pragma once
 
 #include <cstdint>
@@ -73,7 +84,7 @@ struct Options {
   Method method = Method::quadrature;
   int draws = 10000;          // simulate: number of draws (at least 1 is used)
   int quadrature_nodes = 48;  // quadrature: Gauss-Hermite nodes, clamped to [1, 256]; 1 when eta_variance == 0.
-                              // Accuracy depends on it; see "Accuracy of the quadrature" above.
+                              // Used while rho <= 1.5; a grid rule otherwise. See "Accuracy of the quadrature" above.
   double alpha = 0.001;       // one-sided tail probability for each bound; clamped to [1e-300, 0.5]
 };
 
@@ -99,7 +110,7 @@ struct Bounds {
 // using the monotonicity of the CDF (a p-value is never moved across alpha
 // by more than the rounding error of the sums that produced it).
 //
-// Numerics (quadrature), apart from the rule's own error above: bounds are
+// Numerics (quadrature), apart from the rule's limits above: bounds are
 // exact integers for the quadrature mixture's CDF as computed; the count
 // tails keep ~1e-12 relative accuracy down to ~1e-30 (Boost.Math without
 // long-double promotion); p-values beyond the bounds carry that relative

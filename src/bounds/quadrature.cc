@@ -1,7 +1,7 @@
 #include "bounds/quadrature.h"
 
 #include <algorithm>
-#include <array>
+#include <vector>
 #include <cmath>
 #include <limits>
 
@@ -19,7 +19,8 @@ namespace {
 // before the search falls back to probing.
 constexpr std::int64_t kWalk = 128;
 
-using PerNode = std::array<double, kMaxHermiteNodes>;
+// Per-component values; sized to the mixture (up to kMaxGridNodes).
+using PerNode = std::vector<double>;
 
 // The mixture sum_i w_i NoiseAt(mu_i); components whose mean is at zero are
 // pooled into w0 (mass at count 0). All other components share one kind:
@@ -28,12 +29,64 @@ struct Mixture {
   int n = 0;
   double w0 = 0;
   bool poisson = true;
-  PerNode w{}, mu{}, size{}, q{}, inv_mu{};
-  std::array<NoiseAt, kMaxHermiteNodes> noise{};
+  PerNode w, mu, size, q, inv_mu;
+  std::vector<NoiseAt> noise;
   double expected = 0;  // sum_i w_i mu_i, zero components included
 };
 
-void build_mixture(const Predictor& predictor, const CountNoise& noise, int nodes, Mixture& m) {
+// d eta / d mu at mu > 0.
+double eta_per_mu(glm::Link link, double mu) {
+  switch (link) {
+    case glm::Link::log: return 1 / mu;
+    case glm::Link::sqrt: return 0.5 / std::sqrt(mu);
+    case glm::Link::identity: return 1;
+  }
+  return 1;
+}
+
+// The count noise's standard deviation carried to the eta scale (delta
+// method) at the mean g^{-1}(eta); +inf where the mean is at zero.
+double noise_width(const CountNoise& noise, double eta) {
+  const NoiseAt d = noise_at(noise, mean_from_eta(noise.link, eta));
+  if (d.at_zero) return std::numeric_limits<double>::infinity();
+  const double variance = d.mu * (d.poisson ? 1 : 1 + d.mu / d.size);
+  return std::sqrt(variance) * eta_per_mu(noise.link, d.mu);
+}
+
+}  // namespace
+
+QuadratureRule choose_rule(const Predictor& predictor, const CountNoise& noise, int nodes, double alpha) {
+  QuadratureRule r;
+  r.hermite_nodes = std::clamp(nodes, 1, kMaxHermiteNodes);
+  if (predictor.eta_variance == 0) {
+    r.hermite_nodes = 1;
+    return r;
+  }
+  const double sd = std::sqrt(predictor.eta_variance);
+  const double z = std::sqrt(2.0) * boost::math::erfc_inv(2 * alpha);  // P(Z > z) = alpha
+  // The narrowest noise the bounds depend on: at both bounds' scale on the
+  // eta axis. Not at the observed count: a wild count (up to 2^53) would
+  // otherwise buy a huge grid for one record; its p-value only needs to be
+  // on the right side of alpha, which the bounds settle.
+  double width = std::min(noise_width(noise, predictor.eta_mean - z * sd),
+                          noise_width(noise, predictor.eta_mean + z * sd));
+  r.rho = sd / width;
+  if (!(r.rho > kHermiteMaxRho)) return r;  // also NaN: keep Gauss-Hermite
+  r.grid = true;
+  const double step = std::min(sd, width) / kGridStepsPerWidth;
+  const double span = 2 * kGridHalfWidth * sd;
+  const double wanted = std::ceil(span / step) + 1;
+  r.grid_nodes = wanted >= kMaxGridNodes ? kMaxGridNodes : static_cast<int>(wanted);
+  r.grid_capped = wanted > kMaxGridNodes;
+  return r;
+}
+
+namespace {
+
+void build_mixture(const Predictor& predictor, const CountNoise& noise, const QuadratureRule& rule, Mixture& m) {
+  const std::size_t capacity = static_cast<std::size_t>(rule.grid ? rule.grid_nodes : rule.hermite_nodes);
+  for (PerNode* v : {&m.w, &m.mu, &m.size, &m.q, &m.inv_mu}) v->resize(capacity);
+  m.noise.resize(capacity);
   const auto add = [&](double weight, double eta) {
     const NoiseAt d = noise_at(noise, mean_from_eta(noise.link, eta));
     if (d.at_zero) {
@@ -54,14 +107,36 @@ void build_mixture(const Predictor& predictor, const CountNoise& noise, int node
     add(1, predictor.eta_mean);
     return;
   }
-  const HermiteRule& rule = gauss_hermite(nodes);
+  if (rule.grid) {
+    // Trapezoid rule in eta over +-kGridHalfWidth sd. For an integrand
+    // that is a Gaussian weight times a function analytic in a strip (the
+    // count pmfs and CDFs as functions of eta are), the trapezoid rule
+    // converges geometrically in 1/step (the standard result for periodic
+    // or rapidly decaying analytic integrands); with kGridStepsPerWidth
+    // steps per narrower width the error is far below double rounding.
+    const double sd = std::sqrt(predictor.eta_variance);
+    const int n = rule.grid_nodes;
+    const double step = 2 * kGridHalfWidth * sd / (n - 1);
+    std::vector<double> weight(static_cast<std::size_t>(n));
+    double total = 0;
+    for (int i = 0; i < n; ++i) {
+      const double x = -kGridHalfWidth + step / sd * i;  // standardised
+      weight[static_cast<std::size_t>(i)] = std::exp(-0.5 * x * x);
+      total += weight[static_cast<std::size_t>(i)];
+    }
+    for (int i = 0; i < n; ++i) {
+      add(weight[static_cast<std::size_t>(i)] / total, predictor.eta_mean - kGridHalfWidth * sd + step * i);
+    }
+    return;
+  }
+  const HermiteRule& hermite = gauss_hermite(rule.hermite_nodes);
   // Normalising by the computed sum (sqrt(pi) up to rounding) makes the
   // mixture CDF reach exactly 1 as far as the sums allow.
   double total = 0;
-  for (const double x : rule.weights) total += x;
+  for (const double x : hermite.weights) total += x;
   const double scale = std::sqrt(2 * predictor.eta_variance);
-  for (std::size_t i = 0; i < rule.nodes.size(); ++i) {
-    add(rule.weights[i] / total, predictor.eta_mean + scale * rule.nodes[i]);
+  for (std::size_t i = 0; i < hermite.nodes.size(); ++i) {
+    add(hermite.weights[i] / total, predictor.eta_mean + scale * hermite.nodes[i]);
   }
 }
 
@@ -76,6 +151,7 @@ double mass(const Mixture& m, std::int64_t k, const PerNode& pmf) {
 void pmf_up(const Mixture& m, std::int64_t k, PerNode& pmf) {
   const std::size_t n = static_cast<std::size_t>(m.n);
   if (k < 0) {
+    pmf.resize(n);
     for (std::size_t i = 0; i < n; ++i) pmf[i] = pmf_zero(m.noise[i]);
     return;
   }
@@ -106,6 +182,7 @@ struct Probe {
 
 Probe probe(const Mixture& m, std::int64_t k, PerNode& pmf) {
   Probe p{m.w0, 0};
+  pmf.resize(static_cast<std::size_t>(m.n));
   for (std::size_t i = 0; i < static_cast<std::size_t>(m.n); ++i) {
     const Tails t = tails_at(m.noise[i], k);
     p.cdf += m.w[i] * t.cdf;
@@ -313,16 +390,6 @@ struct Guesses {
   std::int64_t stride;
 };
 
-// d eta / d mu at mu > 0.
-double eta_per_mu(glm::Link link, double mu) {
-  switch (link) {
-    case glm::Link::log: return 1 / mu;
-    case glm::Link::sqrt: return 0.5 / std::sqrt(mu);
-    case glm::Link::identity: return 1;
-  }
-  return 1;
-}
-
 // Where to start looking for each bound. Two approximations, blended by
 // which source of spread dominates: Cornish-Fisher (first skewness term)
 // from the mixture's first three moments, good when the count noise
@@ -384,7 +451,7 @@ Guesses guess_bounds(const Mixture& m, const Predictor& predictor, const CountNo
 Bounds quadrature_bounds(const Predictor& predictor, const CountNoise& noise, std::int64_t observed,
                          int nodes, double alpha) {
   Mixture m;
-  build_mixture(predictor, noise, nodes, m);
+  build_mixture(predictor, noise, choose_rule(predictor, noise, nodes, alpha), m);
   const Guesses guess = guess_bounds(m, predictor, noise, alpha);
 
   const Boundary low = find_boundary(m, alpha, +1, guess.lower, guess.stride);

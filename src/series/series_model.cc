@@ -151,6 +151,17 @@ void SeriesModel::refit() {
     fit_ = std::move(result);
     has_fit_ = true;
   }
+  release_workspace();
+}
+
+void SeriesModel::release_workspace() {
+  // An n x p design per idle series would be most of its memory (window 156,
+  // 8 coefficients: ~10 KiB of ~16); rebuilding it costs a few allocations
+  // next to an IRLS fit.
+  X_.resize(0, 0);
+  y_.resize(0);
+  offset_.resize(0);
+  weights_.resize(0);
 }
 
 glm::FitResult SeriesModel::fit_report() const {

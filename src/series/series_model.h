@@ -103,7 +103,11 @@ class SeriesModel {
   std::string last_fit_note_ = "not fitted yet";
   std::uint64_t fits_done_ = 0;
 
-  // Reused between refits to avoid reallocating the design.
+  // Frees the refit scratch below.
+  void release_workspace();
+
+  // Refit scratch: built, used and freed within refit(), so a series between
+  // refits holds only its history and its fit.
   Eigen::MatrixXd X_;
   Eigen::VectorXd y_, offset_, weights_;
 };

@@ -1,0 +1,104 @@
+#include "engine/sharded_engine.h"
+
+#include <algorithm>
+#include <cmath>
+#include <thread>
+#include <unordered_set>
+
+#include <fmt/format.h>
+
+#include "bounds/random.h"
+
+namespace tallyd {
+namespace {
+
+// Engine creates a model for a record's series exactly when the record gets
+// past these checks (engine.cc, in the same order) and the limit allows.
+bool passes_engine_checks(const Observation& obs) {
+  return !obs.series.empty() && obs.count >= 0 && std::isfinite(obs.exposure) && obs.exposure > 0;
+}
+
+}  // namespace
+
+ShardedEngine::ShardedEngine(const SettingsTable& settings, int workers, EngineLimits limits)
+    : limits_(limits) {
+  const int n = std::clamp(workers, 1, 64);
+  // The shards never meet the limit themselves: admission happens here.
+  EngineLimits unlimited;
+  unlimited.max_series = limits.max_series;
+  for (int i = 0; i < n; ++i) shards_.push_back(std::make_unique<Engine>(settings, unlimited));
+}
+
+std::size_t ShardedEngine::shard_of(std::string_view series) const {
+  return static_cast<std::size_t>(bounds::stable_hash(series) % shards_.size());
+}
+
+std::vector<IngestResult> ShardedEngine::ingest_batch(const std::vector<Observation>& batch) {
+  std::vector<IngestResult> results(batch.size());
+  // Owner of each record; kRefused for records settled here.
+  constexpr std::size_t kRefused = static_cast<std::size_t>(-1);
+  std::vector<std::size_t> owner(batch.size());
+  // Series this batch will create (the shards are idle here, so asking them is safe).
+  std::unordered_set<std::string_view> created;
+  const std::size_t existing = series_count();
+  for (std::size_t i = 0; i < batch.size(); ++i) {
+    const Observation& obs = batch[i];
+    owner[i] = shard_of(obs.series);
+    if (!passes_engine_checks(obs) || created.count(obs.series) != 0 ||
+        shards_[owner[i]]->find(obs.series) != nullptr)
+      continue;
+    if (existing + created.size() >= limits_.max_series) {
+      // Engine's own refusal, word for word.
+      ++refused_here_;
+      owner[i] = kRefused;
+      IngestResult& r = results[i];
+      r.kind = IngestResult::Kind::rejected;
+      r.rejection = Rejection{RejectReason::too_many_series, obs.where,
+                              fmt::format("series '{}' would exceed the limit of {} series", obs.series,
+                                          limits_.max_series)};
+      continue;
+    }
+    created.insert(obs.series);
+  }
+
+  const auto work = [&](std::size_t shard) {
+    Engine& engine = *shards_[shard];
+    for (std::size_t i = 0; i < batch.size(); ++i) {
+      if (owner[i] == shard) results[i] = engine.ingest(batch[i]);
+    }
+  };
+  std::vector<std::thread> threads;
+  threads.reserve(shards_.size() - 1);
+  for (std::size_t s = 1; s < shards_.size(); ++s) threads.emplace_back(work, s);
+  work(0);
+  for (std::thread& t : threads) t.join();
+  return results;
+}
+
+EngineCounters ShardedEngine::counters() const {
+  EngineCounters total;
+  total.records = refused_here_;
+  total.rejected.by_reason[static_cast<std::size_t>(RejectReason::too_many_series)] = refused_here_;
+  for (const auto& e : shards_) {
+    const EngineCounters& c = e->counters();
+    total.records += c.records;
+    total.judged += c.judged;
+    total.warming_up += c.warming_up;
+    total.alerts_high += c.alerts_high;
+    total.alerts_low += c.alerts_low;
+    for (std::size_t r = 0; r < kRejectReasonCount; ++r) total.rejected.by_reason[r] += c.rejected.by_reason[r];
+  }
+  return total;
+}
+
+std::size_t ShardedEngine::series_count() const {
+  std::size_t n = 0;
+  for (const auto& e : shards_) n += e->series_count();
+  return n;
+}
+
+const SeriesModel* ShardedEngine::find(const std::string& series) const {
+  return shards_[shard_of(series)]->find(series);
+}
+
+}  // namespace tallyd
