@@ -229,7 +229,7 @@ class TuneCommand final : public Command {
     in.notes.push_back("feeds: " + feed_list);
     in.notes.push_back("config: " + (config_path_.empty() ? std::string("built-in defaults") : config_path_));
     in.notes.push_back("known episodes: " + (events_path_.empty() ? std::string("none given") : events_path_));
-    in.notes.push_back(summary_);
+    in.notes.push_back("first model setting's replay (alerts at the configured alpha): " + summary_);
     in.series = traces.finish(*engine);
     in.episodes = episodes;
     in.tune_rows = &rows;

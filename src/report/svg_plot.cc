@@ -364,9 +364,9 @@ std::string tradeoff_svg(const std::vector<tune::TuneRow>& rows, std::optional<s
   if (chosen && *chosen < rows.size()) {
     const tune::Score& s = rows[*chosen].score;
     svg += fmt::format("<circle cx='{}' cy='{}' r='8' fill='none' stroke='#000' stroke-width='2'/>"
-                       "<text x='{}' y='{}' font-weight='bold'>chosen: alpha {:g}</text>",
-                       f1(px(s.false_per_series_year)), f1(py(s.detection)), f1(px(s.false_per_series_year) + 10),
-                       f1(py(s.detection) + 16), s.alpha);
+                       "<text x='{}' y='{}' text-anchor='end' font-weight='bold'>chosen: alpha {:g}</text>",
+                       f1(px(s.false_per_series_year)), f1(py(s.detection)), f1(px(s.false_per_series_year) - 10),
+                       f1(py(s.detection) + 20), s.alpha);
   }
   return svg + "</svg>";
 }
