@@ -90,7 +90,7 @@ const std::string kJsonl =
     kLong + "\n" +
     R"({"time":1748779200,"series":"trap-1","count":3)" "\n"
     "\x7F\x45LF\x02\x01\n"
-    R"({"time":1748786400,"series":"trap 2, south","count":4.0,"exposure":null})" "\n";
+    R"({"time":1748786400,"series":"trap 2, south","count":4.0})" "\n";
 
 std::vector<std::string> jsonl_expected(const std::string& p) {
   return {
