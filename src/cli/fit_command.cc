@@ -42,15 +42,12 @@ class FitCommand final : public Command {
   }
 
   int run() override {
-    MonitorConfig config;
-    if (!config_path_.empty()) {
-      auto loaded = load_config(config_path_);
-      if (!loaded) {
-        spdlog::error("{}", loaded.error().message);
-        return kExitUsage;
-      }
-      config = std::move(loaded).value();
+    auto loaded = load_config_or_defaults(config_path_);
+    if (!loaded) {
+      spdlog::error("{}", loaded.error().message);
+      return kExitUsage;
     }
+    const MonitorConfig config = std::move(loaded).value();
     if (int rc = read_series(); rc != kExitOk) return rc;
 
     Result<ModelSpec> spec = build_spec(config);
