@@ -77,15 +77,12 @@ class TuneCommand final : public Command {
   }
 
   int run() override {
-    MonitorConfig config;
-    if (!config_path_.empty()) {
-      auto loaded = load_config(config_path_);
-      if (!loaded) {
-        spdlog::error("{}", loaded.error().message);
-        return kExitUsage;
-      }
-      config = std::move(loaded).value();
+    auto loaded_config = load_config_or_defaults(config_path_);
+    if (!loaded_config) {
+      spdlog::error("{}", loaded_config.error().message);
+      return kExitUsage;
     }
+    const MonitorConfig config = std::move(loaded_config).value();
     std::vector<tune::Episode> episodes;
     if (!events_path_.empty()) {
       auto loaded = tune::load_episodes(events_path_);
