@@ -6,7 +6,8 @@
 // Prints seconds and the ratio of each to the baseline, measured in the same
 // run (the machine is shared and noisy; only ratios are meaningful).
 //
-//   build/tune_bench [--series N] [--days D] [--alphas K]
+//   build/tune_bench [--series N] [--days D] [--alphas K] [--html FILE]
+// --html writes the rendered report, e.g. to time a browser opening it.
 #include <chrono>
 #include <cmath>
 #include <cstdio>
@@ -28,6 +29,7 @@ struct Args {
   int series = 1000;
   int days = 100;
   int alphas = 10;
+  std::string html_path;
 };
 
 Args parse_args(int argc, char** argv) {
@@ -35,7 +37,8 @@ Args parse_args(int argc, char** argv) {
   for (int i = 1; i + 1 < argc; i += 2) {
     const std::string k = argv[i];
     const int v = static_cast<int>(std::strtol(argv[i + 1], nullptr, 10));
-    if (k == "--series") a.series = v;
+    if (k == "--html") a.html_path = argv[i + 1];
+    else if (k == "--series") a.series = v;
     else if (k == "--days") a.days = v;
     else if (k == "--alphas") a.alphas = v;
     else {
@@ -114,5 +117,12 @@ int main(int argc, char** argv) {
   const double render = seconds_since(t0);
   std::printf("%-44s %8.2f s  ratio %.2f  (%.1f MB, %zu series)\n", "render the HTML report", render, render / base,
               static_cast<double>(html.size()) / 1e6, in.series.size());
+  if (!a.html_path.empty()) {
+    std::FILE* f = std::fopen(a.html_path.c_str(), "wb");
+    if (!f || std::fwrite(html.data(), 1, html.size(), f) != html.size() || std::fclose(f) != 0) {
+      std::fprintf(stderr, "%s: cannot write the report\n", a.html_path.c_str());
+      return 1;
+    }
+  }
   return 0;
 }

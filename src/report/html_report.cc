@@ -34,8 +34,8 @@ const char* const kScript = R"(
   var panels=document.querySelectorAll('section.panel');
   function draw(p){
     if(p.getAttribute('data-drawn'))return;
-    var t=p.querySelector('template');
-    p.querySelector('.plot').appendChild(t.content.cloneNode(true));
+    var t=p.querySelector('script[type="text/x-panel"]');
+    p.querySelector('.plot').innerHTML=t.textContent;
     p.setAttribute('data-drawn','1');
   }
   var io=null;
@@ -130,9 +130,11 @@ std::string render_report_html(const ReportInput& in) {
   for (std::size_t rank = 0; rank < order.size(); ++rank) {
     const SeriesTrace& t = in.series[order[rank]];
     html += fmt::format("<section class='panel' id='{}'><h3>{}</h3><p class='small'>{} records; {} high and {} low "
-                        "alerts; family {}, alpha {:g}</p><div class='plot'></div><template>",
+                        "alerts; family {}, alpha {:g}</p><div class='plot'></div><script type='text/x-panel'>",
                         anchor(rank), escape_xml(t.id), t.points.size(), t.alerts_high, t.alerts_low,
                         escape_xml(t.family.empty() ? "-" : t.family), t.alpha);
+    // Raw text until drawn: the browser does not parse it at load. It cannot
+    // contain "</script": every text from the data went through escape_xml.
     html += series_plot_svg(t, in.episodes);
     html += "<table class='coef'><tr><th>coefficient (link scale)</th><th>estimate</th><th>std. error</th></tr>";
     for (const CoefficientRow& c : t.coefficients)
@@ -141,7 +143,7 @@ std::string render_report_html(const ReportInput& in) {
     html += fmt::format("</table><p class='small'>fit at the end of the replay: {}; dispersion {}; negbin theta {}</p>",
                         escape_xml(t.fit_status.empty() ? "-" : t.fit_status), fmt_num(t.dispersion),
                         t.family == "negbin" ? fmt_num(t.theta) : "-");
-    html += "</template></section>";
+    html += "</script></section>";
   }
   html += std::string("<script>") + kScript + "</script></body></html>\n";
   return html;

@@ -5,9 +5,10 @@
 // Layout: a heading and the caution; for tuning, the trade-off picture and
 // the chosen setting; an overview table of every series, most alerts first,
 // with a sparkline each; then one panel per series (same order) with its
-// plot and fitted coefficients. Panels are shipped as <template> elements
-// and drawn when scrolled near, then the rest in small batches, so a page
-// with 1,000 series opens at once. When all are drawn the body carries
+// plot and fitted coefficients. Each panel's markup is shipped as the raw
+// text of a <script type='text/x-panel'> element (not parsed at load) and
+// drawn when scrolled near, then the rest in small batches, so a page with
+// 1,000 series does not build every plot before it shows. When all are drawn the body carries
 // data-panels-drawn="N" and each panel data-drawn="1" (for tests).
 #pragma once
 

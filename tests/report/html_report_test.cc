@@ -33,7 +33,7 @@ TEST_CASE("report: one panel per series, most alerts first, self-contained", "[r
   }
   const std::string html = render_report_html(in);
   CHECK(occurrences(html, "<section class='panel'") == 5);
-  CHECK(occurrences(html, "<template>") == 5);
+  CHECK(occurrences(html, "<script type='text/x-panel'>") == 5);
   // s3 has the alerts: first row of the overview and first panel.
   CHECK(html.find("<a href='#s0'>s3</a>") != std::string::npos);
   CHECK(html.find(kCaution) != std::string::npos);
