@@ -9,7 +9,7 @@ namespace tallyd::tune {
 
 ProgressLine::ProgressLine(std::uint64_t expected_total, bool enabled, std::FILE* out)
     : expected_total_(expected_total), enabled_(enabled), out_(out),
-      start_(std::chrono::steady_clock::now()), last_draw_(start_) {}
+      start_(std::chrono::steady_clock::now()), last_draw_(start_ - std::chrono::seconds(1)) {}  // first draw at once
 
 ProgressLine::~ProgressLine() { clear(); }
 

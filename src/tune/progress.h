@@ -17,7 +17,8 @@ class ProgressLine {
   ProgressLine(std::uint64_t expected_total, bool enabled, std::FILE* out = stderr);
   ~ProgressLine();  // clears the line if one was drawn
 
-  // Counts one more record; redraws at most a few times per second.
+  // Counts one more record; draws on the 1024th record, then at most four
+  // times per second.
   void tick(const std::string& stage);
 
   // True when stderr is a terminal.

@@ -128,6 +128,13 @@ for r in rows:
 print("chosen alpha %g: %.3f false alerts per series-year (budget 1)" % (alpha, rate))
 PY
 
+# --- On a terminal (a pseudo-terminal from util-linux's script), progress is drawn on stderr.
+if command -v script >/dev/null; then
+  script -qec "'$tallyd' tune '$tmp/feed.csv' --config '$tmp/base.toml' --alphas 1e-3 >/dev/null" /dev/null \
+    >"$tmp/tty.txt" 2>&1 || fail "tune on a terminal"
+  grep -q "records/s" "$tmp/tty.txt" || { cat "$tmp/tty.txt"; fail "no progress line on a terminal"; }
+fi
+
 # --- An empty events file: only false-alert figures.
 echo "series,start,end" > "$tmp/none.csv"
 "$tallyd" tune "$tmp/feed.csv" --config "$tmp/base.toml" --events "$tmp/none.csv" --alphas 1e-3 --rows "$tmp/none_rows.json" \
