@@ -145,6 +145,7 @@ class TuneCommand final : public Command {
       const int rc = replay_once(table, out, vi == 0);
       if (rc != kExitOk) return rc;
       for (double alpha : alphas_) rows.push_back(tune::TuneRow{v, tune::score_alpha(log, episodes, alpha)});
+      engine_.reset();  // it points into `table`, which ends here
     }
     tune::rank_rows(rows, max_false_per_year_);
     const std::optional<std::size_t> chosen = tune::choose_row(rows, max_false_per_year_);
