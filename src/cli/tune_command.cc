@@ -62,7 +62,7 @@ class TuneCommand final : public Command {
         ->delimiter(',')
         ->check(CLI::Range(1, 20));
     sub.add_option("--max-false-per-year", max_false_per_year_,
-                   "False-alert budget: alerts outside known episodes per series-year")
+                   "False-alert budget: alerts outside known episodes per series-year (default 2)")
         ->check(CLI::Range(0.0, 1e9));
     sub.add_option("--rows", rows_path_, "Write every scored row to this file: JSON if it ends in .json, else CSV");
     sub.add_option("--snippet", snippet_path_, "Write the recommended config lines (TOML) to this file");
