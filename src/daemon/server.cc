@@ -83,6 +83,11 @@ Result<std::unique_ptr<Server>> Server::start(const ServeOptions& options) {
     return Error{fmt::format("{}: no [[source]] table: nothing to serve", options.config_path)};
   if (Status st = s->restore_state(); !st) return st.error();
   s->io_ = std::make_unique<asio::io_context>(1);
+  // Signals are caught from here on (before the ports file tells anyone we are up).
+  s->signals_ = std::make_unique<asio::signal_set>(*s->io_, SIGTERM, SIGINT, SIGHUP);
+  s->signals_->add(SIGUSR1);
+  s->poll_timer_ = std::make_unique<asio::steady_timer>(*s->io_);
+  s->checkpoint_timer_ = std::make_unique<asio::steady_timer>(*s->io_);
   if (Status st = s->open_sources(); !st) return st.error();
   // A checkpoint before reading anything: from now on a restart always finds
   // one that matches the alert log.
@@ -308,10 +313,6 @@ void Server::shutdown() {
 }
 
 int Server::run() {
-  poll_timer_ = std::make_unique<asio::steady_timer>(*io_);
-  checkpoint_timer_ = std::make_unique<asio::steady_timer>(*io_);
-  signals_ = std::make_unique<asio::signal_set>(*io_, SIGTERM, SIGINT, SIGHUP);
-  signals_->add(SIGUSR1);
   wait_signals();
   poll_files();
   schedule_checkpoint();

@@ -40,7 +40,8 @@ void load_fit(StateReader& r, glm::FitResult& f, int p) {
   f.status = status_from(r, r.u64());
   f.note = r.str();
   const std::uint64_t nc = r.u64();
-  if (!r.failed() && nc != static_cast<std::uint64_t>(p))
+  // An empty fit (never fitted) has no coefficients, whatever the model.
+  if (!r.failed() && nc != 0 && nc != static_cast<std::uint64_t>(p))
     r.fail(fmt::format("fit has {} coefficients, the configured model has {}", nc, p));
   if (r.failed()) return;
   f.coefficients.resize(static_cast<Eigen::Index>(nc));
