@@ -34,15 +34,12 @@ class ReplayCommand final : public Command {
   }
 
   int run() override {
-    MonitorConfig config;
-    if (!config_path_.empty()) {
-      auto loaded = load_config(config_path_);
-      if (!loaded) {
-        spdlog::error("{}", loaded.error().message);
-        return kExitUsage;
-      }
-      config = std::move(loaded).value();
+    auto loaded = load_config_or_defaults(config_path_);
+    if (!loaded) {
+      spdlog::error("{}", loaded.error().message);
+      return kExitUsage;
     }
+    const MonitorConfig config = std::move(loaded).value();
 
     ReadOptions read_options;
     read_options.max_line_bytes = max_line_bytes_;
