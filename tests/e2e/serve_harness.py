@@ -24,13 +24,13 @@ class Server:
         self.proc = None
         self.ports = {}
 
-    def start(self, timeout=20):
+    def start(self, timeout=20, stdin=subprocess.DEVNULL):
         if os.path.exists(self.ports_file):
             os.remove(self.ports_file)
         err = open(self.err_path, "ab")
         self.proc = subprocess.Popen([self.tallyd, "serve", "--config", self.config,
                                       "--ports-file", self.ports_file] + self.extra,
-                                     stdin=subprocess.DEVNULL, stdout=err, stderr=err)
+                                     stdin=stdin, stdout=err, stderr=err)
         deadline = time.time() + timeout
         while time.time() < deadline:
             if self.proc.poll() is not None:

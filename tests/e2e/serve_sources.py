@@ -201,5 +201,26 @@ server = Server(tallyd, config, work, extra=["--fresh"]).start()
 if not os.path.exists(ckpt + ".set-aside"):
     fail("--fresh did not set the damaged checkpoint aside")
 server.stop()
+
+# 10. Standard input: JSON Lines piped in; the bad line counted, the rest processed.
+stdin_conf = os.path.join(work, "stdin.toml")
+with open(stdin_conf, "w") as f:
+    f.write("""
+[[source]]
+kind = "stdin"
+name = "pipe"
+
+[output]
+alerts = "%s"
+
+[checkpoint]
+path = "%s"
+""" % (os.path.join(work, "stdin-alerts.jsonl"), os.path.join(work, "stdin.ckpt")))
+server = Server(tallyd, stdin_conf, work).start(stdin=subprocess.PIPE)
+server.proc.stdin.write("".join('{"time":%d,"series":"p","count":%d}\n' % (1700000000 + d * 3600, d % 4)
+                                for d in range(1, 41)).encode() + b'{"time":1,"series":"p"\n')
+server.proc.stdin.close()
+server.wait_until("40 records from stdin", lambda: records("pipe") == 40 and rejections("bad_format") == 1)
+server.stop()
 shutil.rmtree(work)
-print("ok: identity with replay, TCP, UDP, rotation, late file, status, SIGHUP, SIGUSR1, damaged checkpoints")
+print("ok: identity with replay, TCP, UDP, rotation, late file, status, SIGHUP, SIGUSR1, damaged checkpoints, stdin")
