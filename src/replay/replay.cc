@@ -22,6 +22,7 @@ std::uint64_t replay_feeds(FeedSet& feeds, Engine& engine, const ReplayOutputs& 
       if (out.on_rejection) out.on_rejection(*r.rejection);
       continue;
     }
+    if (out.on_record) out.on_record(obs, r);
     if (!r.alert) continue;
     if (out.alerts_json) *out.alerts_json << alert_json(*r.alert) << '\n';
     if (out.alerts_text) *out.alerts_text << alert_text(*r.alert) << '\n';
