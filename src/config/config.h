@@ -8,6 +8,7 @@
 //   [alert]   defaults for judging (AlertSpec)
 //   [limits]  engine limits (EngineLimits)
 //   [[series]] match = "glob", then model.* / alert.* overrides; first match wins
+//   [[source]], [output], [checkpoint], [status], [intake]: for `serve` (ServiceConfig)
 // Every error names the file, the line and the key, e.g.
 //   "monitor.toml:7: model.family: 'poison' is not one of poisson, quasipoisson, negbin".
 // Unknown keys are errors (a typo must not silently fall back to a default).
@@ -16,6 +17,7 @@
 #include <string>
 #include <string_view>
 
+#include "config/service_config.h"
 #include "core/result.h"
 #include "engine/engine.h"
 #include "series/model_spec.h"
@@ -25,6 +27,7 @@ namespace tallyd {
 struct MonitorConfig {
   SettingsTable settings;
   EngineLimits limits;
+  ServiceConfig service;  // used by `serve` only (config/service_config.h)
   std::string source;  // file the config came from ("" for built-in defaults)
 };
 
