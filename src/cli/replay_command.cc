@@ -82,7 +82,7 @@ class ReplayCommand final : public Command {
                      rejects_path_.empty() ? " (use --rejects FILE to keep them all)" : "");
     };
 
-    Engine engine(config.settings, config.limits);
+    Engine engine(config.settings, config.limits, config.fdr);
     replay_feeds(*feeds, engine, out);
     std::cout.flush();
     if (alerts_file.is_open()) {

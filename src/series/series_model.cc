@@ -146,11 +146,63 @@ void SeriesModel::refit() {
   last_fit_note_ = result.note;
   // A failed fit keeps the previous coefficients; a non-converged one is used
   // only when there is nothing better.
+  if (result.status == glm::FitStatus::ok && settings_->model.reweight) {
+    // Outbreak-resistant refit: down-weight outlying records and fit once
+    // more from the first fit (Farrington et al. 1996; Noufaily et al. 2013).
+    Eigen::VectorXd resistant = resistant_weights(result);
+    if (resistant.size() > 0) {
+      glm::FitResult second = glm::fit_glm(X_, y_, offset_, resistant, options, &result.coefficients, true);
+      ++fits_done_;
+      if (second.status == glm::FitStatus::ok) result = std::move(second);
+    }
+  }
   if (result.status == glm::FitStatus::ok ||
       (result.status == glm::FitStatus::not_converged && !has_fit_)) {
     fit_ = std::move(result);
     has_fit_ = true;
   }
+}
+
+Eigen::VectorXd SeriesModel::resistant_weights(const glm::FitResult& fit) const {
+  const Eigen::Index n = X_.rows();
+  const glm::Family family = settings_->model.family;
+  const glm::Link link = settings_->model.link;
+  const double phi = family == glm::Family::quasipoisson && std::isfinite(fit.dispersion) && fit.dispersion > 0
+                         ? fit.dispersion
+                         : 1.0;
+  const bool nb = family == glm::Family::negbin && std::isfinite(fit.theta) && fit.theta > 0;
+  const double threshold = settings_->model.reweight_threshold;
+  Eigen::VectorXd w = weights_;
+  bool any = false;
+  for (Eigen::Index i = 0; i < n; ++i) {
+    if (weights_(i) <= 0) continue;
+    const Eigen::RowVectorXd x = X_.row(i);
+    const double eta = x.dot(fit.coefficients) + offset_(i);
+    const double mu = glm::link_inv(link, eta);
+    if (!(mu > 1e-12)) continue;
+    const double variance = nb ? mu + mu * mu / fit.theta : mu;
+    const double d = glm::mu_eta(link, eta);
+    // Leverage h = w x' (X'WX)^-1 x with Cov = phi (X'WX)^-1 for quasi-Poisson.
+    const double working = weights_(i) * d * d / variance;
+    const Eigen::VectorXd cx = fit.covariance * x.transpose();
+    const double h = std::clamp(working * x.dot(cx) / phi, 0.0, 0.99);
+    // Poisson Anscombe residual; its variance is about the dispersion index
+    // (phi, or 1 + mu / theta for NB2).
+    const double y = y_(i);
+    const double anscombe = 1.5 * (std::cbrt(y * y) - std::cbrt(mu * mu)) / std::pow(mu, 1.0 / 6.0);
+    const double index = nb ? 1 + mu / fit.theta : phi;
+    const double s = anscombe / std::sqrt(index * (1 - h));
+    if (s > threshold) {
+      w(i) = weights_(i) / (s * s);
+      any = true;
+    }
+  }
+  if (!any) return {};
+  // gamma: keep the total prior weight (Farrington et al. 1996).
+  const double total = w.sum();
+  if (!(total > 0)) return {};
+  w *= weights_.sum() / total;
+  return w;
 }
 
 glm::FitResult SeriesModel::fit_report() const {

@@ -84,6 +84,11 @@ class SeriesModel {
   void build_design(Eigen::MatrixXd& X, Eigen::VectorXd& y, Eigen::VectorXd& offset,
                     Eigen::VectorXd& weights) const;
   glm::FitOptions fit_options() const;
+  // Prior weights for the resistant refit after `fit` of the current design
+  // (X_, y_, offset_, weights_): records with standardized Anscombe residual
+  // above model.reweight_threshold get weight / residual^2, all rescaled to
+  // the same total. Empty when no record is down-weighted.
+  Eigen::VectorXd resistant_weights(const glm::FitResult& fit) const;
   double row_for(TimePoint time, double exposure, const double* covariates,
                  RowRef row) const;
   std::vector<double> covariates_of(const Observation& obs) const;
