@@ -170,7 +170,7 @@ double median(std::vector<int> v) {
 }  // namespace
 
 int main(int argc, char** argv) {
-  int n = 200;
+  int n = 100;
   std::uint64_t seed = 2013;
   for (int i = 1; i + 1 < argc; i += 2) {
     const std::string k = argv[i];

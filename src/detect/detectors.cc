@@ -55,11 +55,19 @@ LowThreshold low_threshold(const Observation& obs, const Prediction& p, const Se
 
 CountLaw law_of(const Prediction& prediction) {
   CountLaw law;
-  law.mean = std::max(prediction.bounds.expected, 1e-6);
+  const double mu = std::max(prediction.bounds.expected, 1e-6);
+  law.mean = mu;
   const bounds::CountNoise& n = prediction.noise;
-  if (n.family == glm::Family::negbin && std::isfinite(n.theta) && n.theta > 0) law.size = n.theta;
+  double variance = mu;  // the count noise at mu
+  if (n.family == glm::Family::negbin && std::isfinite(n.theta) && n.theta > 0) variance = mu + mu * mu / n.theta;
   if (n.family == glm::Family::quasipoisson && std::isfinite(n.dispersion) && n.dispersion > 1)
-    law.size = law.mean / (n.dispersion - 1);
+    variance = n.dispersion * mu;
+  // Plus the spread of the mean from the fitted coefficients (log link:
+  // Var(exp(eta*)) = mu^2 (exp(v) - 1) for eta* ~ N(., v) with mean mu), so
+  // the in-control law is the predictive one, not the plug-in one.
+  const double v = prediction.predictor.eta_variance;
+  if (n.link == glm::Link::log && std::isfinite(v) && v > 0) variance += mu * mu * std::expm1(std::min(v, 5.0));
+  if (variance > mu * (1 + 1e-9)) law.size = mu * mu / (variance - mu);
   return law;
 }
 

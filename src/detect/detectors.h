@@ -26,9 +26,11 @@ struct DetectorState {
   std::uint32_t run_records = 0;    // records in the current run of low records
 };
 
-// The in-control count law the CUSUM uses for a prediction: its predictive
-// mean with the fitted noise (Poisson; NB2 with size theta; quasi-Poisson
-// with phi > 1 as NB2 with size mean / (phi - 1)).
+// The in-control count law the CUSUM uses for a prediction: NB2 (or
+// Poisson) with the predictive mean and variance. The variance is the fitted
+// noise's (Poisson mu; NB2 mu + mu^2 / theta; quasi-Poisson phi mu) plus,
+// under the log link, the spread of the mean from the coefficients'
+// uncertainty, mu^2 (exp(eta_variance) - 1).
 CountLaw law_of(const Prediction& prediction);
 
 // Updates `state` with the judged record and returns the alerts it raises
