@@ -49,7 +49,11 @@ class Reader {
 
   void read_model(const toml::table& t, std::string_view prefix, ModelSpec& m) {
     check_keys(t, prefix, {"family", "link", "trend", "covariates", "seasons", "window", "min_history", "refit_every",
-                           "reweight", "reweight_threshold", "alerted_weight"});
+                           "reweight", "reweight_threshold", "alerted_weight", "guard_records"});
+    if (auto* v = get<toml::value<int64_t>>(t, "guard_records", prefix, "an integer")) {
+      if (v->get() < 0 || v->get() > 1000) fail(*v, join(prefix, "guard_records"), "must be between 0 and 1000");
+      else m.guard_records = static_cast<std::size_t>(v->get());
+    }
     if (auto* v = get<toml::value<bool>>(t, "reweight", prefix, "true or false")) m.reweight = v->get();
     if (const toml::node* n = t.get("reweight_threshold")) {
       std::optional<double> v = n->value<double>();

@@ -21,7 +21,9 @@ std::size_t SeriesModel::min_history() const {
   return std::max(settings_->model.min_history, static_cast<std::size_t>(p_) + 2);
 }
 
-bool SeriesModel::ready() const { return has_fit_ && records_.size() >= min_history(); }
+bool SeriesModel::ready() const {
+  return has_fit_ && records_.size() >= min_history() + settings_->model.guard_records;
+}
 
 std::optional<TimePoint> SeriesModel::last_time() const {
   if (records_.empty()) return std::nullopt;
@@ -83,7 +85,7 @@ void SeriesModel::learn(const Observation& obs, double weight) {
   }
   trim_window(obs.time);
   ++since_refit_;
-  if (records_.size() >= min_history() &&
+  if (records_.size() >= min_history() + settings_->model.guard_records &&
       (since_refit_ >= settings_->model.refit_every || !has_fit_)) {
     refit();
   }
@@ -105,8 +107,8 @@ void SeriesModel::trim_window(TimePoint latest) {
 }
 
 void SeriesModel::build_design(Eigen::MatrixXd& X, Eigen::VectorXd& y, Eigen::VectorXd& offset,
-                               Eigen::VectorXd& weights) const {
-  const std::size_t n = records_.size();
+                               Eigen::VectorXd& weights, std::size_t rows) const {
+  const std::size_t n = std::min(rows, records_.size());
   const std::size_t k = settings_->model.covariates.size();
   X.resize(static_cast<Eigen::Index>(n), p_);
   y.resize(static_cast<Eigen::Index>(n));
@@ -132,8 +134,12 @@ glm::FitOptions SeriesModel::fit_options() const {
 
 void SeriesModel::refit() {
   since_refit_ = 0;
-  if (records_.empty()) return;
-  build_design(X_, y_, offset_, weights_);
+  // The guard band: the newest guard_records records stay out of the fit
+  // that judges the next record, so an outbreak's first weeks cannot pull
+  // the baseline up before they have been judged a few more times.
+  const std::size_t guard = settings_->model.guard_records;
+  if (records_.size() <= guard) return;
+  build_design(X_, y_, offset_, weights_, records_.size() - guard);
 
   glm::FitOptions options = fit_options();
   options.null_deviance = false;  // not needed for judging; fit_report() asks for it
@@ -208,7 +214,7 @@ Eigen::VectorXd SeriesModel::resistant_weights(const glm::FitResult& fit) const 
 glm::FitResult SeriesModel::fit_report() const {
   Eigen::MatrixXd X;
   Eigen::VectorXd y, offset, weights;
-  build_design(X, y, offset, weights);
+  build_design(X, y, offset, weights, records_.size());
   return glm::fit_glm(X, y, offset, weights, fit_options(), nullptr, true);
 }
 

@@ -43,7 +43,8 @@ class SeriesModel {
   // The name of a covariate the model needs that `obs` lacks, or nullopt.
   std::optional<std::string> missing_covariate(const Observation& obs) const;
 
-  // True once the series has enough history and a usable fit to judge records.
+  // True once the series has enough history (min_history plus the guard
+  // band, model.guard_records) and a usable fit to judge records.
   bool ready() const;
 
   // Predictive bounds for `obs` from the current fit. Precondition: ready()
@@ -81,8 +82,9 @@ class SeriesModel {
   };
 
   void trim_window(TimePoint latest);
+  // The design of the oldest `rows` records of the window.
   void build_design(Eigen::MatrixXd& X, Eigen::VectorXd& y, Eigen::VectorXd& offset,
-                    Eigen::VectorXd& weights) const;
+                    Eigen::VectorXd& weights, std::size_t rows) const;
   glm::FitOptions fit_options() const;
   // Prior weights for the resistant refit after `fit` of the current design
   // (X_, y_, offset_, weights_): records with standardized Anscombe residual

@@ -108,6 +108,7 @@ TEST_CASE("detector and resistant-training keys", "[config]") {
 reweight = false
 reweight_threshold = 3
 alerted_weight = 0.25
+guard_records = 3
 [detect]
 shift = true
 shift_factor = 1.5
@@ -125,6 +126,7 @@ detect.shift = false
   CHECK_FALSE(d.model.reweight);
   CHECK(d.model.reweight_threshold == 3);
   CHECK(d.model.alerted_weight == 0.25);
+  CHECK(d.model.guard_records == 3);
   CHECK(d.detect.shift);
   CHECK(d.detect.shift_factor == 1.5);
   CHECK(d.detect.shift_arl_records == 1000);

@@ -42,3 +42,34 @@ TEST_CASE("reweighting keeps an outbreak out of its own baseline", "[series]") {
   CHECK(resistant < plain - 1.0);
   CHECK(resistant == Approx(10).epsilon(0.1));
 }
+
+TEST_CASE("guard band: the newest records stay out of the fit that judges the next", "[series]") {
+  SeriesSettings guarded;
+  guarded.model.family = glm::Family::poisson;
+  guarded.model.reweight = false;
+  guarded.model.min_history = 10;
+  guarded.model.guard_records = 2;
+  SeriesSettings plain = guarded;
+  plain.model.guard_records = 0;
+  SeriesModel a("g", guarded), b("g", plain);
+  bounds::Rng rng(12);
+  auto at = [](int day, std::int64_t count) {
+    Observation o;
+    o.series = "g";
+    o.time = TimePoint{Seconds{1600000000 + static_cast<std::int64_t>(day) * 86400}};
+    o.count = count;
+    return o;
+  };
+  for (int d = 0; d < 11; ++d) {
+    const Observation o = at(d, rng.poisson(6));
+    a.learn(o);
+    b.learn(o);
+  }
+  CHECK(b.ready());
+  CHECK_FALSE(a.ready());  // needs min_history + 2 records
+  a.learn(at(11, 90));
+  a.learn(at(12, 95));
+  REQUIRE(a.ready());
+  // a's fit uses the first 11 records only, as b's does.
+  CHECK(a.fit().coefficients(0) == Approx(b.fit().coefficients(0)).epsilon(1e-9));
+}
