@@ -159,7 +159,18 @@ void SeriesModel::refit() {
     if (resistant.size() > 0) {
       glm::FitResult second = glm::fit_glm(X_, y_, offset_, resistant, options, &result.coefficients, true);
       ++fits_done_;
-      if (second.status == glm::FitStatus::ok) result = std::move(second);
+      if (second.status == glm::FitStatus::ok) {
+        // The weighted Pearson statistic loses the largest residuals, so the
+        // reweighted quasi-Poisson phi runs low even with no outbreak, and
+        // narrower bounds alarm more often. Keep the larger of the two
+        // dispersions (the mean stays resistant); measured in docs/detection.md.
+        if (settings_->model.family == glm::Family::quasipoisson && second.dispersion > 0 &&
+            result.dispersion > second.dispersion) {
+          second.covariance *= result.dispersion / second.dispersion;
+          second.dispersion = result.dispersion;
+        }
+        result = std::move(second);
+      }
     }
   }
   if (result.status == glm::FitStatus::ok ||
