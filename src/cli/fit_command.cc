@@ -42,15 +42,12 @@ class FitCommand final : public Command {
   }
 
   int run() override {
-    MonitorConfig config;
-    if (!config_path_.empty()) {
-      auto loaded = load_config(config_path_);
-      if (!loaded) {
-        spdlog::error("{}", loaded.error().message);
-        return kExitUsage;
-      }
-      config = std::move(loaded).value();
+    auto loaded = load_config_or_defaults(config_path_);
+    if (!loaded) {
+      spdlog::error("{}", loaded.error().message);
+      return kExitUsage;
     }
+    const MonitorConfig config = std::move(loaded).value();
     if (int rc = read_series(); rc != kExitOk) return rc;
 
     Result<ModelSpec> spec = build_spec(config);
@@ -231,8 +228,11 @@ class FitCommand final : public Command {
                                        : fmt::format("theta {:.4g}", r.fit.theta);
         if (r.fit.status == glm::FitStatus::not_converged) notes += (notes.empty() ? "" : "; ") + std::string("not converged");
       }
-      std::cout << fmt::format("{:<14} {:<9} {:>12} {:>10} {:>12.4f} {:>6}  {}\n", glm::to_string(r.family),
-                               glm::to_string(r.link), aic, delta, r.fit.deviance, r.fit.df_residual, notes);
+      const bool failed = r.fit.status == glm::FitStatus::failed;
+      const std::string deviance = failed ? "-" : fmt::format("{:.4f}", r.fit.deviance);
+      const std::string df = failed ? "-" : std::to_string(r.fit.df_residual);
+      std::cout << fmt::format("{:<14} {:<9} {:>12} {:>10} {:>12} {:>6}  {}\n", glm::to_string(r.family),
+                               glm::to_string(r.link), aic, delta, deviance, df, notes);
     }
     return kExitOk;
   }

@@ -1,4 +1,6 @@
-// `tallyd replay FEED... [--config FILE] [--alerts FILE] [--rejects FILE]`
+// `tallyd replay FEED... [--config FILE] [--alerts FILE] [--rejects FILE]
+//  [--report FILE.html [--events FILE]] [--plot-series ID --plot-file FILE.svg]`
+#include <algorithm>
 #include <fstream>
 #include <iostream>
 
@@ -9,6 +11,11 @@
 #include "config/config.h"
 #include "feed/feed_merge.h"
 #include "replay/replay.h"
+#include "report/html_report.h"
+#include "report/output_file.h"
+#include "report/svg_plot.h"
+#include "report/trace.h"
+#include "tune/episodes.h"
 
 namespace tallyd::cli {
 namespace {
@@ -27,6 +34,14 @@ class ReplayCommand final : public Command {
     sub.add_flag("-q,--quiet", quiet_, "Print no alert lines and no summary on the terminal");
     sub.add_option("--max-line-bytes", max_line_bytes_, "Longest feed line accepted, in bytes")
         ->check(CLI::Range(64, 64 * 1024 * 1024));
+    sub.add_option("--report", report_path_,
+                   "Write a self-contained HTML report (overview, one plot per series, fitted coefficients)");
+    sub.add_option("--events", events_path_,
+                   "Known episodes (CSV: series,start,end) to shade in the report and the plot")
+        ->check(CLI::ExistingFile);
+    sub.add_option("--plot-series", plot_series_, "Series whose plot is written with --plot-file");
+    sub.add_option("--plot-file", plot_path_,
+                   "Write the plot of --plot-series as a standalone SVG (e.g. for rsvg-convert -o plot.png)");
     sub.footer(
         "Each record is judged against its series' model fitted on earlier records only, then learned.\n"
         "Exit status: 0 done (refused records are counted, not fatal), 1 usage or config error,\n"
@@ -34,15 +49,12 @@ class ReplayCommand final : public Command {
   }
 
   int run() override {
-    MonitorConfig config;
-    if (!config_path_.empty()) {
-      auto loaded = load_config(config_path_);
-      if (!loaded) {
-        spdlog::error("{}", loaded.error().message);
-        return kExitUsage;
-      }
-      config = std::move(loaded).value();
+    auto loaded = load_config_or_defaults(config_path_);
+    if (!loaded) {
+      spdlog::error("{}", loaded.error().message);
+      return kExitUsage;
     }
+    const MonitorConfig config = std::move(loaded).value();
 
     ReadOptions read_options;
     read_options.max_line_bytes = max_line_bytes_;
@@ -82,6 +94,23 @@ class ReplayCommand final : public Command {
                      rejects_path_.empty() ? " (use --rejects FILE to keep them all)" : "");
     };
 
+    std::vector<tune::Episode> episodes;
+    if (!events_path_.empty()) {
+      auto loaded = tune::load_episodes(events_path_);
+      if (!loaded) {
+        spdlog::error("{}", loaded.error().message);
+        return kExitUsage;
+      }
+      episodes = std::move(loaded).value();
+    }
+    if (plot_series_.empty() != plot_path_.empty()) {
+      spdlog::error("--plot-series and --plot-file go together");
+      return kExitUsage;
+    }
+    report::TraceCollector traces;
+    const bool want_traces = !report_path_.empty() || !plot_path_.empty();
+    if (want_traces) out.on_record = [&](const Observation& o, const IngestResult& r) { traces.add(o, r); };
+
     Engine engine(config.settings, config.limits, config.fdr);
     replay_feeds(*feeds, engine, out);
     std::cout.flush();
@@ -92,16 +121,53 @@ class ReplayCommand final : public Command {
         return kExitData;
       }
     }
-    if (!quiet_) spdlog::info("replay: {}", describe_counters(engine.counters(), engine.series_count()));
+    const std::string summary = describe_counters(engine.counters(), engine.series_count());
+    if (!quiet_) spdlog::info("replay: {}", summary);
+    if (want_traces) return write_pictures(traces.finish(engine), episodes, summary);
     return kExitOk;
   }
 
  private:
+  int write_pictures(std::vector<report::SeriesTrace> series, std::vector<tune::Episode> episodes,
+                     const std::string& summary) {
+    if (!plot_path_.empty()) {
+      auto it = std::find_if(series.begin(), series.end(), [&](const auto& t) { return t.id == plot_series_; });
+      if (it == series.end()) {
+        spdlog::error("--plot-series: no accepted records for series '{}'", plot_series_);
+        return kExitData;
+      }
+      if (auto st = report::write_output_file(plot_path_, report::series_plot_svg(*it, episodes), "the plot"); !st) {
+        spdlog::error("{}", st.error().message);
+        return kExitData;
+      }
+    }
+    if (report_path_.empty()) return kExitOk;
+    report::ReportInput in;
+    in.title = "tallyd replay report";
+    std::string feed_list;
+    for (const std::string& f : feeds_) feed_list += (feed_list.empty() ? "" : ", ") + f;
+    in.notes.push_back("feeds: " + feed_list);
+    in.notes.push_back("config: " + (config_path_.empty() ? std::string("built-in defaults") : config_path_));
+    if (!events_path_.empty()) in.notes.push_back("known episodes: " + events_path_);
+    in.notes.push_back(summary);
+    in.series = std::move(series);
+    in.episodes = std::move(episodes);
+    if (auto st = report::write_output_file(report_path_, report::render_report_html(in), "the report"); !st) {
+      spdlog::error("{}", st.error().message);
+      return kExitData;
+    }
+    return kExitOk;
+  }
+
   static constexpr std::uint64_t kShownRejections = 20;
   std::vector<std::string> feeds_;
   std::string config_path_;
   std::string alerts_path_;
   std::string rejects_path_;
+  std::string report_path_;
+  std::string events_path_;
+  std::string plot_series_;
+  std::string plot_path_;
   std::size_t max_line_bytes_ = 64 * 1024;
   bool quiet_ = false;
 };

@@ -313,4 +313,9 @@ Result<MonitorConfig> load_config(const std::string& path) {
   return parse_config(text.str(), path);
 }
 
+Result<MonitorConfig> load_config_or_defaults(const std::string& path) {
+  if (path.empty()) return MonitorConfig{};
+  return load_config(path);
+}
+
 }  // namespace tallyd

@@ -37,4 +37,7 @@ Result<MonitorConfig> parse_config(std::string_view text, std::string_view sourc
 // Reads and parses a file; a missing or unreadable file is an error naming it.
 Result<MonitorConfig> load_config(const std::string& path);
 
+// load_config(path), or the built-in defaults when `path` is empty.
+Result<MonitorConfig> load_config_or_defaults(const std::string& path);
+
 }  // namespace tallyd

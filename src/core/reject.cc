@@ -16,6 +16,7 @@ std::string_view reject_label(RejectReason reason) {
     case RejectReason::out_of_order: return "out_of_order";
     case RejectReason::too_many_series: return "too_many_series";
     case RejectReason::read_error: return "read_error";
+    case RejectReason::missing_exposure: return "missing_exposure";
   }
   return "unknown";
 }

@@ -24,9 +24,12 @@ enum class RejectReason : std::uint8_t {
   out_of_order,       // older than (or as old as) the newest record of its series
   too_many_series,    // a new series id beyond the configured series limit
   read_error,         // the source failed to read (I/O error); what follows in it is lost
+  missing_exposure,   // the exposure column is present but empty (JSON null): effort unknown, skipped
 };
 
-inline constexpr std::size_t kRejectReasonCount = 12;
+// Keep equal to the last enumerator above: counts are sized from it.
+inline constexpr RejectReason kLastRejectReason = RejectReason::missing_exposure;
+inline constexpr std::size_t kRejectReasonCount = static_cast<std::size_t>(kLastRejectReason) + 1;
 
 // Stable snake_case label used in logs, JSON and metrics.
 std::string_view reject_label(RejectReason reason);

@@ -156,10 +156,11 @@ FieldCheck read_count(std::string_view text, std::int64_t& count) {
 }
 
 FieldCheck read_exposure(std::string_view text, double& exposure) {
-  if (text.empty()) {
-    exposure = 1.0;
-    return std::nullopt;
-  }
+  // An exposure column with an empty cell means the effort was not recorded:
+  // such a count can be neither judged nor learned (only an absent column
+  // means the default of 1).
+  if (text.empty())
+    return fault(RejectReason::missing_exposure, "exposure is empty: the effort behind this count is unknown");
   double value = 0;
   switch (parse_real(text, value)) {
     case Number::ok: break;

@@ -72,7 +72,8 @@ FieldCheck read_member(const JsonMember& m, Observation& obs, Seen& seen, bool& 
   if (m.key == "exposure") {
     if (!first_time(seen.exposure)) return std::nullopt;
     if (m.type == JsonType::number) return read_exposure(m.text, obs.exposure);
-    if (m.type == JsonType::null) return std::nullopt;  // absent: the default stays
+    if (m.type == JsonType::null)  // present but unknown, unlike an absent key (default 1)
+      return FieldCheck(FieldFault{RejectReason::missing_exposure, "exposure is null: the effort behind this count is unknown"});
     return wrong_type(RejectReason::bad_exposure, "exposure", "a number", m);
   }
   if (m.type != JsonType::number) return std::nullopt;  // not a covariate: ignored

@@ -17,21 +17,43 @@ bool means_from(Link link, const Eigen::VectorXd& eta, Eigen::VectorXd& mu) {
 
 // A valid coefficient vector to step back to when the first step from
 // mu = y + 0.1 leaves the valid region and there are no coefficients yet:
-// the constant-mean fit, i.e. a column that is constant and non-zero (an
-// intercept) at g(weighted mean count), the rest 0. False when the design
-// has no such column or the offset makes that fit invalid somewhere.
+// the "constant-rate" fit that uses one column only, all other coefficients
+// 0. The column must be positive on every record (an intercept, or an
+// intercept scaled by exposure or its square root, as series/design.h does
+// for the identity and sqrt links), and constant under the log link. Its
+// coefficient matches the total count:
+//   log      b = log(sum w y / sum w exp(offset)) / c
+//   identity b = (sum w y - sum w offset) / sum w c
+//   sqrt     b = sqrt(sum w y / sum w c^2)        (offset 0 only)
+// False when no column qualifies or the result is still invalid somewhere.
 bool constant_mean_fit(const Eigen::MatrixXd& X, const Eigen::VectorXd& y,
                        const Eigen::VectorXd& offset, const Eigen::VectorXd& w, Link link,
                        Eigen::VectorXd& beta, Eigen::VectorXd& eta, Eigen::VectorXd& mu) {
   if (X.rows() == 0) return false;
+  const double wy = w.dot(y);
   for (Eigen::Index j = 0; j < X.cols(); ++j) {
-    const double c = X(0, j);
-    if (c == 0 || (X.col(j).array() != c).any()) continue;
+    const Eigen::VectorXd c = X.col(j);
+    if ((c.array() <= 0).any()) continue;
+    double b = std::numeric_limits<double>::quiet_NaN();
+    switch (link) {
+      case Link::log:
+        if ((c.array() != c(0)).any()) continue;
+        b = std::log(wy / w.dot(offset.array().exp().matrix())) / c(0);
+        break;
+      case Link::identity:
+        b = (wy - w.dot(offset)) / w.dot(c);
+        break;
+      case Link::sqrt:
+        if ((offset.array() != 0).any()) continue;
+        b = std::sqrt(wy / w.dot(c.cwiseProduct(c)));
+        break;
+    }
+    if (!std::isfinite(b)) continue;
     beta.setZero();
-    beta(j) = link_fun(link, w.dot(y) / w.sum()) / c;
+    beta(j) = b;
     eta.noalias() = X * beta;
     eta += offset;
-    return std::isfinite(beta(j)) && means_from(link, eta, mu);
+    if (means_from(link, eta, mu)) return true;
   }
   return false;
 }

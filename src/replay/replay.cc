@@ -27,6 +27,7 @@ std::uint64_t replay_feeds(FeedSet& feeds, Engine& engine, const ReplayOutputs& 
       if (out.on_rejection) out.on_rejection(*r.rejection);
       continue;
     }
+    if (out.on_record) out.on_record(obs, r);
     for (const Alert& a : r.released) write(a);
     if (r.alert) write(*r.alert);
     for (const Alert& a : r.detector_alerts) write(a);

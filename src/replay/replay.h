@@ -19,6 +19,9 @@ struct ReplayOutputs {
   std::ostream* alerts_text = nullptr;  // one human-readable line per alert; null = not written
   // Called for every refused record (parser or engine), in feed order.
   std::function<void(const Rejection&)> on_rejection;
+  // Called for every record the engine accepted (judged or warming up), in
+  // feed order, after ingest; for tuning and reports. Null = not called.
+  std::function<void(const Observation&, const IngestResult&)> on_record;
 };
 
 // Feeds every item of `feeds` through `engine` in merged time order and

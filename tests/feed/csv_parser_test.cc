@@ -53,11 +53,11 @@ TEST_CASE("CSV header errors name the source and what is wrong", "[feed][csv]") 
         "traps.csv:3: CSV header column 4 name 't\\xFF' is not valid UTF-8");
 }
 
-TEST_CASE("CSV exposure column: empty cell means 1", "[feed][csv]") {
+TEST_CASE("CSV exposure column: an empty cell is missing effort, refused", "[feed][csv]") {
   CsvParser p = header("time,series,count,exposure");
   ParseOutcome o = p.parse("1748757600,a,3,", SourcePos{"f.csv", 2});
-  REQUIRE(o.kind() == LineKind::record);
-  CHECK(o.record().exposure == 1.0);
+  REQUIRE(o.kind() == LineKind::rejected);
+  CHECK(o.rejection().describe() == "f.csv:2: missing_exposure: exposure is empty: the effort behind this count is unknown");
   o = p.parse("1748757600,a,3,2.5", SourcePos{"f.csv", 3});
   REQUIRE(o.kind() == LineKind::record);
   CHECK(o.record().exposure == 2.5);

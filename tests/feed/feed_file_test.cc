@@ -9,39 +9,12 @@
 #include <vector>
 
 #include "core/time.h"
+#include "support/temp_dir.h"
 
 namespace tallyd {
 namespace {
 
-// A fresh directory under the system's temporary directory, removed with
-// everything in it at the end of the test.
-class TempDir {
- public:
-  TempDir() {
-    std::random_device random;
-    do {
-      dir_ = std::filesystem::temp_directory_path() / ("tallyd-feed-file-" + std::to_string(random()));
-    } while (!std::filesystem::create_directory(dir_));
-  }
-  ~TempDir() {
-    std::error_code ignored;
-    std::filesystem::remove_all(dir_, ignored);
-  }
-  TempDir(const TempDir&) = delete;
-  TempDir& operator=(const TempDir&) = delete;
-
-  std::string write(const std::string& name, std::string_view content) const {
-    const std::string path = (dir_ / name).string();
-    std::ofstream out(path, std::ios::binary);
-    out.write(content.data(), static_cast<std::streamsize>(content.size()));
-    REQUIRE(out.good());
-    return path;
-  }
-  std::string path(const std::string& name) const { return (dir_ / name).string(); }
-
- private:
-  std::filesystem::path dir_;
-};
+using testing::TempDir;
 
 // One line per item: a record's fields, or a refusal as describe() gives it.
 std::string summary(const FeedItem& item) {
@@ -117,7 +90,7 @@ const std::string kJsonl =
     kLong + "\n" +
     R"({"time":1748779200,"series":"trap-1","count":3)" "\n"
     "\x7F\x45LF\x02\x01\n"
-    R"({"time":1748786400,"series":"trap 2, south","count":4.0,"exposure":null})" "\n";
+    R"({"time":1748786400,"series":"trap 2, south","count":4.0})" "\n";
 
 std::vector<std::string> jsonl_expected(const std::string& p) {
   return {

@@ -8,38 +8,12 @@
 #include <string>
 #include <vector>
 
+#include "support/temp_dir.h"
+
 namespace tallyd {
 namespace {
 
-// A fresh directory under the system's temporary directory, removed with
-// everything in it at the end of the test.
-class TempDir {
- public:
-  TempDir() {
-    std::random_device random;
-    do {
-      dir_ = std::filesystem::temp_directory_path() / ("tallyd-feed-merge-" + std::to_string(random()));
-    } while (!std::filesystem::create_directory(dir_));
-  }
-  ~TempDir() {
-    std::error_code ignored;
-    std::filesystem::remove_all(dir_, ignored);
-  }
-  TempDir(const TempDir&) = delete;
-  TempDir& operator=(const TempDir&) = delete;
-
-  std::string write(const std::string& name, std::string_view content) const {
-    const std::string path = (dir_ / name).string();
-    std::ofstream out(path, std::ios::binary);
-    out.write(content.data(), static_cast<std::streamsize>(content.size()));
-    REQUIRE(out.good());
-    return path;
-  }
-  std::string path(const std::string& name) const { return (dir_ / name).string(); }
-
- private:
-  std::filesystem::path dir_;
-};
+using testing::TempDir;
 
 // "<series><count>" for a record (each test record has a unique pair),
 // "reject <file name>:<line>" for a refusal.

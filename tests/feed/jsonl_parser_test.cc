@@ -64,10 +64,11 @@ TEST_CASE("JSONL numeric extra members are covariates, others are ignored", "[fe
         "s.jsonl:4: bad_covariate: covariate 'temp_c' value '1e400' is not finite");
 }
 
-TEST_CASE("JSONL exposure: absent or null means 1", "[feed][jsonl]") {
+TEST_CASE("JSONL exposure: absent means 1, null means unknown effort", "[feed][jsonl]") {
   JsonlParser p;
   CHECK(record(p, R"({"time":0,"series":"a","count":1})").exposure == 1.0);
-  CHECK(record(p, R"({"time":0,"series":"a","count":1,"exposure":null})").exposure == 1.0);
+  CHECK(refusal(p, R"({"time":0,"series":"a","count":1,"exposure":null})") ==
+        "s.jsonl:4: missing_exposure: exposure is null: the effort behind this count is unknown");
   CHECK(record(p, R"({"time":0,"series":"a","count":1,"exposure":0.5})").exposure == 0.5);
   CHECK(refusal(p, R"({"time":0,"series":"a","count":1,"exposure":0})") ==
         "s.jsonl:4: zero_exposure: exposure '0' is zero: no effort to judge");
