@@ -20,6 +20,7 @@ struct CommandRow {
 const CommandRow kCommands[] = {
     {"replay", "Replay feed files in time order exactly as the service would, writing alerts", make_replay_command},
     {"fit", "Fit one series' model and print its coefficients, deviance and AIC", make_fit_command},
+    {"serve", "Run as a service: follow files and sockets, judge records as they arrive, checkpoint state", make_serve_command},
     {"tune", "Score alphas and model settings on history against known episodes; recommend one", make_tune_command},
 };
 

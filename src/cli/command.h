@@ -24,6 +24,7 @@ class Command {
 
 std::unique_ptr<Command> make_replay_command();
 std::unique_ptr<Command> make_fit_command();
+std::unique_ptr<Command> make_serve_command();
 std::unique_ptr<Command> make_tune_command();
 
 // The whole program: parses argv, runs one subcommand, returns the exit code.

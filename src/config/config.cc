@@ -7,6 +7,8 @@
 #include <fmt/format.h>
 #include <toml++/toml.h>
 
+#include "config/service_tables.h"
+
 namespace tallyd {
 namespace {
 
@@ -254,7 +256,8 @@ Result<MonitorConfig> parse_config(std::string_view text, std::string_view sourc
   MonitorConfig config;
   config.source = std::string(source_name);
   Reader r(source_name);
-  r.check_keys(root, "", {"model", "alert", "detect", "fdr", "limits", "series"});
+  r.check_keys(root, "", {"model", "alert", "detect", "fdr", "limits", "series", "source", "output", "checkpoint",
+                          "status", "intake"});
 
   auto table_at = [&](std::string_view key) -> const toml::table* {
     const toml::node* n = root.get(key);
@@ -302,6 +305,7 @@ Result<MonitorConfig> parse_config(std::string_view text, std::string_view sourc
     }
   }
   if (r.failed()) return Error{r.error()};
+  if (std::string e = read_service_tables(root, source_name, config.service); !e.empty()) return Error{e};
   return config;
 }
 

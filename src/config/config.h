@@ -10,6 +10,7 @@
 //   [fdr]     Benjamini-Hochberg across series per time step (detect/fdr.h: FdrSpec)
 //   [limits]  engine limits (EngineLimits)
 //   [[series]] match = "glob", then model.* / alert.* overrides; first match wins
+//   [[source]], [output], [checkpoint], [status], [intake]: for `serve` (ServiceConfig)
 // Every error names the file, the line and the key, e.g.
 //   "monitor.toml:7: model.family: 'poison' is not one of poisson, quasipoisson, negbin".
 // Unknown keys are errors (a typo must not silently fall back to a default).
@@ -18,6 +19,7 @@
 #include <string>
 #include <string_view>
 
+#include "config/service_config.h"
 #include "core/result.h"
 #include "engine/engine.h"
 #include "series/model_spec.h"
@@ -27,7 +29,8 @@ namespace tallyd {
 struct MonitorConfig {
   SettingsTable settings;
   EngineLimits limits;
-  detect::FdrSpec fdr;  // [fdr]: control across series per time step (off by default)
+  detect::FdrSpec fdr;    // [fdr]: control across series per time step (off by default)
+  ServiceConfig service;  // used by `serve` only (config/service_config.h)
   std::string source;  // file the config came from ("" for built-in defaults)
 };
 

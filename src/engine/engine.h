@@ -23,6 +23,9 @@
 
 namespace tallyd {
 
+class StateWriter;
+class StateReader;
+
 struct EngineLimits {
   std::size_t max_series = 100000;  // new series ids beyond this are rejected (too_many_series)
 };
@@ -81,6 +84,13 @@ class Engine {
   const detect::DetectorState* detector_state(const std::string& series) const;
   // Series in id order.
   const std::map<std::string, std::unique_ptr<SeriesModel>>& series() const { return series_; }
+
+  // Counters and every series model (engine/engine_state.cc; layout of
+  // core/state_codec.h). load_state is for a freshly constructed engine with
+  // the same settings; on failure the reader carries the error and the engine
+  // must be discarded. Series saved beyond limits.max_series are kept.
+  void save_state(StateWriter& w) const;
+  void load_state(StateReader& r);
 
  private:
   IngestResult reject(const Observation& obs, RejectReason reason, std::string detail);

@@ -25,6 +25,9 @@
 
 namespace tallyd {
 
+class StateWriter;
+class StateReader;
+
 // What the model says about one record before seeing it.
 struct Prediction {
   bounds::Predictor predictor;  // eta mean and variance, offset included
@@ -72,6 +75,16 @@ class SeriesModel {
   const std::string& last_fit_note() const { return last_fit_note_; }
   glm::FitStatus last_fit_status() const { return last_fit_status_; }
   std::uint64_t fits_done() const { return fits_done_; }
+
+  // Every field that decides future predictions (history, covariates, fit
+  // with its warm-start values, counters), in the layout of core/state_codec.h.
+  // Implemented in series/series_state.cc.
+  void save_state(StateWriter& w) const;
+  // Replaces this model's state with one saved by save_state for the same
+  // settings. On failure the reader carries the error and this model must be
+  // discarded (it may be partly overwritten). A coefficient count that does
+  // not match the settings is a failure.
+  void load_state(StateReader& r);
 
  private:
   struct Stored {

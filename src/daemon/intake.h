@@ -1,0 +1,81 @@
+// Intake: the service's handler. It takes decoded lines from every source,
+// feeds records to the engine, writes alerts to the alert log and keeps the
+// figures the status endpoint shows. It touches no sockets and no files other
+// than through AlertLog; used from the event loop thread only.
+#pragma once
+
+#include <array>
+#include <chrono>
+#include <cstdint>
+#include <deque>
+#include <memory>
+#include <string>
+#include <vector>
+
+#include "daemon/alert_log.h"
+#include "engine/engine.h"
+#include "feed/parse_outcome.h"
+
+namespace tallyd::daemon {
+
+using SteadyTime = std::chrono::steady_clock::time_point;
+
+// Per-source figures for status and metrics.
+struct SourceFigures {
+  std::string name;
+  std::string kind;            // follow, tcp, udp, stdin
+  std::uint64_t records = 0;   // lines that parsed into records (accepted or not by the engine)
+  std::uint64_t rejected = 0;  // refusals by the parser or the engine
+  std::uint64_t connections = 0;          // tcp: accepted so far
+  std::uint64_t connections_refused = 0;  // tcp: closed at once because of max_connections
+};
+
+// Upper bounds (seconds) of the processing-latency histogram buckets: from a
+// line's arrival (its bytes read) to the end of its judgement, alert written.
+inline constexpr std::array<double, 10> kLatencyBounds = {1e-5, 3e-5, 1e-4, 3e-4, 1e-3, 3e-3, 0.01, 0.03, 0.1, 1.0};
+
+struct LatencyHistogram {
+  std::array<std::uint64_t, kLatencyBounds.size() + 1> counts{};  // last: +Inf
+  double sum_seconds = 0;
+  std::uint64_t total = 0;
+  void add(double seconds);
+};
+
+class Intake {
+ public:
+  Intake(std::unique_ptr<Engine> engine, AlertLog& log);
+
+  // One decoded line from a source. Records go to the engine; refusals are
+  // counted and logged at most a few times a second.
+  void offer(ParseOutcome& outcome, SourceFigures& figures, SteadyTime arrival);
+  // A refusal made outside a decoder (e.g. a datagram too large, a refused connection).
+  void refuse(const Rejection& r, SourceFigures& figures);
+  // A warning that is not a record's refusal (e.g. a connection over the
+  // limit), under the same rate limit as refusals.
+  void warn_limited(const std::string& message);
+
+  Engine& engine() { return *engine_; }
+  const Engine& engine() const { return *engine_; }
+  // Swaps in another engine (a config reload); the old one is returned.
+  std::unique_ptr<Engine> replace_engine(std::unique_ptr<Engine> engine);
+
+  const LatencyHistogram& latency() const { return latency_; }
+  const std::deque<std::string>& last_alerts() const { return last_alerts_; }  // JSON lines, newest last
+  std::uint64_t write_failures() const { return write_failures_; }
+
+ private:
+  void log_refusal(const Rejection& r) { warn_limited(r.describe()); }
+
+  std::unique_ptr<Engine> engine_;
+  AlertLog* log_;
+  LatencyHistogram latency_;
+  std::deque<std::string> last_alerts_;
+  std::uint64_t write_failures_ = 0;
+  // Rate limit for refusal warnings: at most kWarnPerSecond per second.
+  static constexpr int kWarnPerSecond = 5;
+  std::chrono::steady_clock::time_point warn_window_{};
+  int warned_in_window_ = 0;
+  std::uint64_t suppressed_ = 0;
+};
+
+}  // namespace tallyd::daemon

@@ -1,0 +1,128 @@
+// The status endpoint's two documents: /state (JSON) and /metrics
+// (OpenMetrics text format 1.0.0). Part of Server; loop thread only.
+#include <fmt/format.h>
+#include <nlohmann/json.hpp>
+
+#include "daemon/server.h"
+
+namespace tallyd::daemon {
+namespace {
+
+std::string label_value(std::string_view s) {
+  // OpenMetrics label values escape backslash, double quote and newline.
+  std::string out;
+  for (char c : s) {
+    if (c == '\\') out += "\\\\";
+    else if (c == '"') out += "\\\"";
+    else if (c == '\n') out += "\\n";
+    else out += c;
+  }
+  return out;
+}
+
+std::int64_t unix_now() {
+  return std::chrono::duration_cast<std::chrono::seconds>(std::chrono::system_clock::now().time_since_epoch()).count();
+}
+
+}  // namespace
+
+std::string Server::status_json() const {
+  using nlohmann::json;
+  const Engine& e = intake_->engine();
+  const EngineCounters& c = e.counters();
+  json j;
+  j["uptime_seconds"] =
+      std::chrono::duration_cast<std::chrono::seconds>(std::chrono::steady_clock::now() - started_).count();
+  j["series"] = e.series_count();
+  j["records"] = c.records;
+  j["judged"] = c.judged;
+  j["warming_up"] = c.warming_up;
+  json rej = json::object();
+  for (std::size_t i = 0; i < kRejectReasonCount; ++i)
+    rej[std::string(reject_label(static_cast<RejectReason>(i)))] = c.rejected.by_reason[i];
+  j["rejected"] = rej;
+  j["alerts"] = {{"high", c.alerts_high}, {"low", c.alerts_low}};
+  j["alert_log"] = {{"path", alert_log_->path()}, {"bytes", alert_log_->bytes()}};
+  j["checkpoint"] = {{"path", config_->service.checkpoint_path},
+                     {"written", checkpoints_written_},
+                     {"failures", checkpoint_failures_},
+                     {"age_seconds", unix_now() - last_checkpoint_unix_}};
+  j["reloads"] = {{"applied", reloads_}, {"refused", reload_failures_}};
+  json sources = json::array();
+  for (const auto& g : follows_) {
+    json files = json::array();
+    for (const auto& [path, f] : g->files) {
+      const std::uint64_t done = f->consumed();
+      files.push_back({{"path", path},
+                       {"open", f->is_open()},
+                       {"offset", done},
+                       {"size", f->size_seen()},
+                       {"lag_bytes", f->size_seen() > done ? f->size_seen() - done : 0}});
+    }
+    sources.push_back({{"name", g->figures.name}, {"kind", "follow"}, {"pattern", g->config.path},
+                       {"records", g->figures.records}, {"rejected", g->figures.rejected}, {"files", files}});
+  }
+  for (const auto& f : socket_figures_) {
+    json s = {{"name", f->name}, {"kind", f->kind}, {"records", f->records}, {"rejected", f->rejected}};
+    if (f->kind == "tcp") {
+      s["connections"] = f->connections;
+      s["connections_refused"] = f->connections_refused;
+    }
+    sources.push_back(s);
+  }
+  j["sources"] = sources;
+  json last = json::array();
+  for (const std::string& a : intake_->last_alerts()) last.push_back(json::parse(a));
+  j["last_alerts"] = last;
+  return j.dump(1) + "\n";
+}
+
+std::string Server::metrics_text() const {
+  const Engine& e = intake_->engine();
+  const EngineCounters& c = e.counters();
+  std::string m;
+  m += "# TYPE tallyd_records counter\n# HELP tallyd_records Records offered to the engine.\n";
+  m += fmt::format("tallyd_records_total {}\n", c.records);
+  m += "# TYPE tallyd_rejections counter\n# HELP tallyd_rejections Refused lines and records, by reason.\n";
+  for (std::size_t i = 0; i < kRejectReasonCount; ++i)
+    m += fmt::format("tallyd_rejections_total{{reason=\"{}\"}} {}\n", reject_label(static_cast<RejectReason>(i)),
+                     c.rejected.by_reason[i]);
+  m += "# TYPE tallyd_alerts counter\n# HELP tallyd_alerts Alerts written, by direction.\n";
+  m += fmt::format("tallyd_alerts_total{{direction=\"high\"}} {}\n", c.alerts_high);
+  m += fmt::format("tallyd_alerts_total{{direction=\"low\"}} {}\n", c.alerts_low);
+  m += "# TYPE tallyd_series gauge\n# HELP tallyd_series Series with a model.\n";
+  m += fmt::format("tallyd_series {}\n", e.series_count());
+  m += "# TYPE tallyd_checkpoint_age_seconds gauge\n# HELP tallyd_checkpoint_age_seconds Seconds since the last checkpoint was written.\n";
+  m += fmt::format("tallyd_checkpoint_age_seconds {}\n", unix_now() - last_checkpoint_unix_);
+  m += "# TYPE tallyd_source_records counter\n# HELP tallyd_source_records Records parsed, by source.\n";
+  for (const SourceFigures* f : all_figures())
+    m += fmt::format("tallyd_source_records_total{{source=\"{}\"}} {}\n", label_value(f->name), f->records);
+  m += "# TYPE tallyd_follow_offset_bytes gauge\n# HELP tallyd_follow_offset_bytes Bytes of a followed file handed to the engine.\n";
+  for (const auto& g : follows_)
+    for (const auto& [path, f] : g->files)
+      m += fmt::format("tallyd_follow_offset_bytes{{source=\"{}\",path=\"{}\"}} {}\n", label_value(g->figures.name),
+                       label_value(path), f->consumed());
+  m += "# TYPE tallyd_follow_lag_bytes gauge\n# HELP tallyd_follow_lag_bytes Bytes of a followed file not yet handed out.\n";
+  for (const auto& g : follows_)
+    for (const auto& [path, f] : g->files) {
+      const std::uint64_t done = f->consumed();
+      m += fmt::format("tallyd_follow_lag_bytes{{source=\"{}\",path=\"{}\"}} {}\n", label_value(g->figures.name),
+                       label_value(path), f->size_seen() > done ? f->size_seen() - done : 0);
+    }
+  m += "# TYPE tallyd_processing_latency_seconds histogram\n"
+       "# HELP tallyd_processing_latency_seconds From a line's bytes read to its record judged and any alert written.\n";
+  const LatencyHistogram& h = intake_->latency();
+  std::uint64_t cumulative = 0;
+  for (std::size_t i = 0; i < kLatencyBounds.size(); ++i) {
+    cumulative += h.counts[i];
+    m += fmt::format("tallyd_processing_latency_seconds_bucket{{le=\"{}\"}} {}\n", kLatencyBounds[i], cumulative);
+  }
+  cumulative += h.counts.back();
+  m += fmt::format("tallyd_processing_latency_seconds_bucket{{le=\"+Inf\"}} {}\n", cumulative);
+  m += fmt::format("tallyd_processing_latency_seconds_count {}\n", h.total);
+  m += fmt::format("tallyd_processing_latency_seconds_sum {}\n", h.sum_seconds);
+  m += "# EOF\n";
+  return m;
+}
+
+}  // namespace tallyd::daemon

@@ -1,0 +1,136 @@
+// Saving and restoring a SeriesModel exactly: a model restored from its saved
+// state makes the same predictions, bit for bit, as the one that was saved.
+#include <fmt/format.h>
+
+#include "core/state_codec.h"
+#include "series/series_model.h"
+
+namespace tallyd {
+namespace {
+
+void save_fit(StateWriter& w, const glm::FitResult& f) {
+  w.tag("fit");
+  w.u64(static_cast<std::uint64_t>(f.status));
+  w.str(f.note);
+  w.u64(static_cast<std::uint64_t>(f.coefficients.size()));
+  for (Eigen::Index i = 0; i < f.coefficients.size(); ++i) w.f64(f.coefficients(i));
+  w.u64(f.aliased.size());
+  for (bool a : f.aliased) w.boolean(a);
+  w.u64(static_cast<std::uint64_t>(f.covariance.rows()));
+  w.u64(static_cast<std::uint64_t>(f.covariance.cols()));
+  for (Eigen::Index j = 0; j < f.covariance.cols(); ++j)
+    for (Eigen::Index i = 0; i < f.covariance.rows(); ++i) w.f64(f.covariance(i, j));
+  for (double d : {f.deviance, f.null_deviance, f.log_likelihood, f.aic, f.dispersion, f.theta, f.theta_std_error})
+    w.f64(d);
+  w.boolean(f.theta_at_limit);
+  for (int n : {f.rank, f.df_residual, f.n, f.iterations}) w.i64(n);
+  w.newline();
+}
+
+glm::FitStatus status_from(StateReader& r, std::uint64_t v) {
+  if (v > static_cast<std::uint64_t>(glm::FitStatus::failed)) r.fail("unknown fit status");
+  return static_cast<glm::FitStatus>(v);
+}
+
+// Sizes come from a file: bound them before allocating.
+constexpr std::uint64_t kMaxSaved = 100'000'000;
+
+void load_fit(StateReader& r, glm::FitResult& f, int p) {
+  r.expect("fit");
+  f.status = status_from(r, r.u64());
+  f.note = r.str();
+  const std::uint64_t nc = r.u64();
+  // An empty fit (never fitted) has no coefficients, whatever the model.
+  if (!r.failed() && nc != 0 && nc != static_cast<std::uint64_t>(p))
+    r.fail(fmt::format("fit has {} coefficients, the configured model has {}", nc, p));
+  if (r.failed()) return;
+  f.coefficients.resize(static_cast<Eigen::Index>(nc));
+  for (Eigen::Index i = 0; i < f.coefficients.size(); ++i) f.coefficients(i) = r.f64();
+  const std::uint64_t na = r.u64();
+  if (na > kMaxSaved) r.fail("aliased flags too many");
+  if (r.failed()) return;
+  f.aliased.assign(na, false);
+  for (std::size_t i = 0; i < na; ++i) f.aliased[i] = r.boolean();
+  const std::uint64_t rows = r.u64(), cols = r.u64();
+  if (rows > 10000 || cols > 10000) r.fail("covariance too large");
+  if (r.failed()) return;
+  f.covariance.resize(static_cast<Eigen::Index>(rows), static_cast<Eigen::Index>(cols));
+  for (Eigen::Index j = 0; j < f.covariance.cols(); ++j)
+    for (Eigen::Index i = 0; i < f.covariance.rows(); ++i) f.covariance(i, j) = r.f64();
+  f.deviance = r.f64();
+  f.null_deviance = r.f64();
+  f.log_likelihood = r.f64();
+  f.aic = r.f64();
+  f.dispersion = r.f64();
+  f.theta = r.f64();
+  f.theta_std_error = r.f64();
+  f.theta_at_limit = r.boolean();
+  f.rank = static_cast<int>(r.i64());
+  f.df_residual = static_cast<int>(r.i64());
+  f.n = static_cast<int>(r.i64());
+  f.iterations = static_cast<int>(r.i64());
+}
+
+}  // namespace
+
+void SeriesModel::save_state(StateWriter& w) const {
+  w.tag("model");
+  w.boolean(origin_.has_value());
+  w.i64(origin_ ? origin_->time_since_epoch().count() : 0);
+  w.u64(since_refit_);
+  w.boolean(has_fit_);
+  w.u64(static_cast<std::uint64_t>(last_fit_status_));
+  w.str(last_fit_note_);
+  w.u64(fits_done_);
+  w.newline();
+  w.tag("history");
+  w.u64(records_.size());
+  w.u64(settings_->model.covariates.size());
+  w.newline();
+  const std::size_t k = settings_->model.covariates.size();
+  for (std::size_t i = 0; i < records_.size(); ++i) {
+    const Stored& s = records_[i];
+    w.i64(s.time.time_since_epoch().count());
+    w.i64(s.count);
+    w.f64(s.exposure);
+    w.f64(s.weight);
+    for (std::size_t c = 0; c < k; ++c) w.f64(covariate_values_[i * k + c]);
+    w.newline();
+  }
+  save_fit(w, fit_);
+}
+
+void SeriesModel::load_state(StateReader& r) {
+  r.expect("model");
+  const bool has_origin = r.boolean();
+  const std::int64_t origin = r.i64();
+  origin_.reset();
+  if (has_origin) origin_ = TimePoint{Seconds{origin}};
+  since_refit_ = r.u64();
+  has_fit_ = r.boolean();
+  last_fit_status_ = status_from(r, r.u64());
+  last_fit_note_ = r.str();
+  fits_done_ = r.u64();
+  r.expect("history");
+  const std::uint64_t n = r.u64();
+  const std::uint64_t k = r.u64();
+  if (!r.failed() && k != settings_->model.covariates.size())
+    r.fail(fmt::format("series '{}' was saved with {} covariates, the configured model has {}", id_, k,
+                       settings_->model.covariates.size()));
+  if (!r.failed() && n > kMaxSaved) r.fail("history too long");
+  if (r.failed()) return;
+  records_.clear();
+  covariate_values_.clear();
+  for (std::uint64_t i = 0; i < n && !r.failed(); ++i) {
+    Stored s{};
+    s.time = TimePoint{Seconds{r.i64()}};
+    s.count = r.i64();
+    s.exposure = r.f64();
+    s.weight = r.f64();
+    records_.push_back(s);
+    for (std::uint64_t c = 0; c < k; ++c) covariate_values_.push_back(r.f64());
+  }
+  load_fit(r, fit_, p_);
+}
+
+}  // namespace tallyd
