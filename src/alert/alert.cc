@@ -28,6 +28,7 @@ std::optional<Alert> judge_count(const Observation& obs, const bounds::Bounds& b
   a.p_value = p;
   a.alpha = spec.alpha;
   a.side = *side;
+  a.statistic = p;
   return a;
 }
 

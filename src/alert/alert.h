@@ -25,7 +25,12 @@ struct Alert {
   double p_value = 1;        // predictive tail probability of a count at least as extreme, on `side`
   double alpha = 0;          // the threshold it was judged against
   AlertSide side = AlertSide::high;
-  std::string detector = "bound";  // which detector fired: "bound" = one count outside its predictive bounds
+  std::string detector = "bound";  // which detector fired: "bound" = one count outside its predictive bounds;
+                                   // "shift" = CUSUM (detect/shift_cusum.h); "low_run" = run of low counts
+  // The detector's statistic when it fired: bound - the tail probability (as
+  // p_value); shift - the CUSUM value in nats that crossed its limit;
+  // low_run - the number of records in the run.
+  double statistic = 0;
 };
 
 // The verdict on one count: an alert when the count lies beyond a bound on a

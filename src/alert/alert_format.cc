@@ -15,12 +15,19 @@ std::string alert_json(const Alert& a) {
   // Fixed notation: expected to 4 significant decimals, p-values to 4
   // significant digits; fmt's formatting is locale-independent and exact.
   return fmt::format(
-      R"({{"time":"{}","series":{},"count":{},"expected":{:.4f},"lower":{},"upper":{},"p_value":{:.4g},"direction":"{}","exposure":{:.6g},"alpha":{:.6g},"detector":"{}"}})",
+      R"({{"time":"{}","series":{},"count":{},"expected":{:.4f},"lower":{},"upper":{},"p_value":{:.4g},"direction":"{}","exposure":{:.6g},"alpha":{:.6g},"detector":"{}","statistic":{:.6g}}})",
       format_time(a.time), quoted(a.series), a.count, a.expected, a.lower, a.upper, a.p_value,
-      to_string(a.side), a.exposure, a.alpha, a.detector);
+      to_string(a.side), a.exposure, a.alpha, a.detector, a.statistic);
 }
 
 std::string alert_text(const Alert& a) {
+  if (a.detector == "shift")
+    return fmt::format("{} {} {} sustained shift: CUSUM {:.3g} nats over its limit (count {}, expected {:.1f}, exposure {:.6g})",
+                       format_time(a.time), a.series, a.side == AlertSide::high ? "HIGH" : "LOW", a.statistic,
+                       a.count, a.expected, a.exposure);
+  if (a.detector == "low_run")
+    return fmt::format("{} {} LOW run of {:.0f} low counts, joint probability {:.2g} (count {}, expected {:.1f})",
+                       format_time(a.time), a.series, a.statistic, a.p_value, a.count, a.expected);
   if (a.side == AlertSide::high)
     return fmt::format("{} {} HIGH count {} > upper {} (expected {:.1f}, p={:.2g}, exposure {:.6g})",
                        format_time(a.time), a.series, a.count, a.upper, a.expected, a.p_value, a.exposure);

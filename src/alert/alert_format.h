@@ -3,7 +3,8 @@
 // give byte-identical files:
 //   {"time":"2025-08-14T06:00:00Z","series":"orchard-n03","count":57,
 //    "expected":12.41,"lower":3,"upper":31,"p_value":2.113e-05,
-//    "direction":"high","exposure":7,"alpha":0.001,"detector":"bound"}
+//    "direction":"high","exposure":7,"alpha":0.001,"detector":"bound",
+//    "statistic":2.113e-05}
 // (one line per alert; wrapped here for reading).
 #pragma once
 

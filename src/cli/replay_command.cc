@@ -111,7 +111,7 @@ class ReplayCommand final : public Command {
     const bool want_traces = !report_path_.empty() || !plot_path_.empty();
     if (want_traces) out.on_record = [&](const Observation& o, const IngestResult& r) { traces.add(o, r); };
 
-    Engine engine(config.settings, config.limits);
+    Engine engine(config.settings, config.limits, config.fdr);
     replay_feeds(*feeds, engine, out);
     std::cout.flush();
     if (alerts_file.is_open()) {

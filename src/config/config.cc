@@ -50,7 +50,23 @@ class Reader {
   }
 
   void read_model(const toml::table& t, std::string_view prefix, ModelSpec& m) {
-    check_keys(t, prefix, {"family", "link", "trend", "covariates", "seasons", "window", "min_history", "refit_every"});
+    check_keys(t, prefix, {"family", "link", "trend", "covariates", "seasons", "window", "min_history", "refit_every",
+                           "reweight", "reweight_threshold", "alerted_weight", "guard_records"});
+    if (auto* v = get<toml::value<int64_t>>(t, "guard_records", prefix, "an integer")) {
+      if (v->get() < 0 || v->get() > 1000) fail(*v, join(prefix, "guard_records"), "must be between 0 and 1000");
+      else m.guard_records = static_cast<std::size_t>(v->get());
+    }
+    if (auto* v = get<toml::value<bool>>(t, "reweight", prefix, "true or false")) m.reweight = v->get();
+    if (const toml::node* n = t.get("reweight_threshold")) {
+      std::optional<double> v = n->value<double>();
+      if (!v || !(*v >= 1 && *v <= 10)) fail(*n, join(prefix, "reweight_threshold"), "must be a number between 1 and 10");
+      else m.reweight_threshold = *v;
+    }
+    if (const toml::node* n = t.get("alerted_weight")) {
+      std::optional<double> v = n->value<double>();
+      if (!v || !(*v >= 0 && *v <= 1)) fail(*n, join(prefix, "alerted_weight"), "must be a number between 0 and 1");
+      else m.alerted_weight = *v;
+    }
     if (auto* v = get<toml::value<std::string>>(t, "family", prefix, "a string")) {
       if (auto f = glm::parse_family(v->get())) m.family = *f;
       else fail(*v, join(prefix, "family"), fmt::format("'{}' is not one of poisson, quasipoisson, negbin", v->get()));
@@ -180,6 +196,41 @@ class Reader {
     }
   }
 
+  void read_detect(const toml::table& t, std::string_view prefix, DetectSpec& d) {
+    check_keys(t, prefix, {"shift", "shift_factor", "shift_arl_records", "low_run", "low_run_quantile", "low_run_alpha"});
+    auto number = [&](std::string_view key, double lo, double hi, bool open_lo, bool open_hi, double& out,
+                      std::string_view what) {
+      const toml::node* n = t.get(key);
+      if (!n) return;
+      std::optional<double> v = n->value<double>();
+      const bool ok = v && (open_lo ? *v > lo : *v >= lo) && (open_hi ? *v < hi : *v <= hi);
+      if (!ok) fail(*n, join(prefix, key), what);
+      else out = *v;
+    };
+    if (auto* v = get<toml::value<bool>>(t, "shift", prefix, "true or false")) d.shift = v->get();
+    if (auto* v = get<toml::value<bool>>(t, "low_run", prefix, "true or false")) d.low_run = v->get();
+    number("shift_factor", 1, 20, true, false, d.shift_factor, "must be a number above 1 and at most 20");
+    number("shift_arl_records", 10, 1e6, false, false, d.shift_arl_records, "must be a number between 10 and 1000000");
+    number("low_run_quantile", 0, 0.5, true, false, d.low_run_quantile, "must be a number in (0, 0.5]");
+    number("low_run_alpha", 0, 0.5, true, true, d.low_run_alpha, "must be a number between 0 and 0.5");
+  }
+
+  void read_fdr(const toml::table& t, detect::FdrSpec& f) {
+    check_keys(t, "fdr", {"rate", "step"});
+    f.enabled = true;  // the table's presence turns it on
+    if (const toml::node* n = t.get("rate")) {
+      std::optional<double> v = n->value<double>();
+      if (!v || !(*v > 0 && *v < 0.5)) fail(*n, "fdr.rate", "must be a number between 0 and 0.5");
+      else f.rate = *v;
+    }
+    if (auto* v = get<toml::value<std::string>>(t, "step", "fdr", "a duration string like \"7d\"")) {
+      auto d = parse_duration(v->get());
+      if (!d) fail(*v, "fdr.step", d.error().message);
+      else if (d->count() <= 0) fail(*v, "fdr.step", "must be longer than 0 seconds");
+      else f.step = *d;
+    }
+  }
+
   void read_limits(const toml::table& t, EngineLimits& l) {
     check_keys(t, "limits", {"max_series"});
     if (auto* v = get<toml::value<int64_t>>(t, "max_series", "limits", "an integer")) {
@@ -205,7 +256,8 @@ Result<MonitorConfig> parse_config(std::string_view text, std::string_view sourc
   MonitorConfig config;
   config.source = std::string(source_name);
   Reader r(source_name);
-  r.check_keys(root, "", {"model", "alert", "limits", "series", "source", "output", "checkpoint", "status", "intake"});
+  r.check_keys(root, "", {"model", "alert", "detect", "fdr", "limits", "series", "source", "output", "checkpoint",
+                          "status", "intake"});
 
   auto table_at = [&](std::string_view key) -> const toml::table* {
     const toml::node* n = root.get(key);
@@ -215,6 +267,8 @@ Result<MonitorConfig> parse_config(std::string_view text, std::string_view sourc
   };
   if (const toml::table* t = table_at("model")) r.read_model(*t, "model", config.settings.defaults.model);
   if (const toml::table* t = table_at("alert")) r.read_alert(*t, "alert", config.settings.defaults.alert);
+  if (const toml::table* t = table_at("detect")) r.read_detect(*t, "detect", config.settings.defaults.detect);
+  if (const toml::table* t = table_at("fdr")) r.read_fdr(*t, config.fdr);
   if (const toml::table* t = table_at("limits")) r.read_limits(*t, config.limits);
 
   if (const toml::node* n = root.get("series")) {
@@ -227,7 +281,7 @@ Result<MonitorConfig> parse_config(std::string_view text, std::string_view sourc
         r.fail((*arr)[i], prefix, "must be a table");
         break;
       }
-      r.check_keys(*st, prefix, {"match", "model", "alert"});
+      r.check_keys(*st, prefix, {"match", "model", "alert", "detect"});
       SettingsRule rule{"", config.settings.defaults};
       const toml::node* m = st->get("match");
       if (!m || !m->is_string() || m->as_string()->get().empty()) {
@@ -242,6 +296,10 @@ Result<MonitorConfig> parse_config(std::string_view text, std::string_view sourc
       if (const toml::node* at = st->get("alert")) {
         if (at->is_table()) r.read_alert(*at->as_table(), prefix + ".alert", rule.settings.alert);
         else r.fail(*at, prefix + ".alert", "must be a table");
+      }
+      if (const toml::node* dt = st->get("detect")) {
+        if (dt->is_table()) r.read_detect(*dt->as_table(), prefix + ".detect", rule.settings.detect);
+        else r.fail(*dt, prefix + ".detect", "must be a table");
       }
       config.settings.rules.push_back(std::move(rule));
     }

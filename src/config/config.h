@@ -6,6 +6,8 @@
 //   [model]   defaults for every series (series/model_spec.h: ModelSpec)
 //   [[model.seasons]] period = "1y", harmonics = 2
 //   [alert]   defaults for judging (AlertSpec)
+//   [detect]  shift CUSUM and low-count run (detect/detect_spec.h: DetectSpec)
+//   [fdr]     Benjamini-Hochberg across series per time step (detect/fdr.h: FdrSpec)
 //   [limits]  engine limits (EngineLimits)
 //   [[series]] match = "glob", then model.* / alert.* overrides; first match wins
 //   [[source]], [output], [checkpoint], [status], [intake]: for `serve` (ServiceConfig)
@@ -27,6 +29,7 @@ namespace tallyd {
 struct MonitorConfig {
   SettingsTable settings;
   EngineLimits limits;
+  detect::FdrSpec fdr;    // [fdr]: control across series per time step (off by default)
   ServiceConfig service;  // used by `serve` only (config/service_config.h)
   std::string source;  // file the config came from ("" for built-in defaults)
 };

@@ -6,12 +6,31 @@
 
 namespace tallyd {
 
-Engine::Engine(const SettingsTable& settings, EngineLimits limits)
-    : settings_(&settings), limits_(limits) {}
+Engine::Engine(const SettingsTable& settings, EngineLimits limits, detect::FdrSpec fdr)
+    : settings_(&settings), limits_(limits), fdr_(fdr) {}
+
+void Engine::count_released(const std::vector<Alert>& alerts) {
+  for (const Alert& a : alerts) {
+    ++(a.side == AlertSide::high ? counters_.alerts_high : counters_.alerts_low);
+    ++counters_.alerts_fdr;
+  }
+}
+
+std::vector<Alert> Engine::flush() {
+  if (!fdr_.enabled) return {};
+  std::vector<Alert> out = detect::fdr_close(fdr_state_, fdr_);
+  count_released(out);
+  return out;
+}
 
 const SeriesModel* Engine::find(const std::string& series) const {
   auto it = series_.find(series);
   return it == series_.end() ? nullptr : it->second.get();
+}
+
+const detect::DetectorState* Engine::detector_state(const std::string& series) const {
+  auto it = detectors_.find(series);
+  return it == detectors_.end() ? nullptr : &it->second;
 }
 
 IngestResult Engine::reject(const Observation& obs, RejectReason reason, std::string detail) {
@@ -52,18 +71,44 @@ IngestResult Engine::ingest(const Observation& obs) {
                               format_time(*last)));
 
   IngestResult r;
+  bool bound_alerted = false;
   if (model.ready()) {
     // Judge before learning: the count must not widen its own interval.
     r.kind = IngestResult::Kind::judged;
     r.prediction = model.predict(obs);
     r.alert = judge_count(obs, r.prediction->bounds, model.settings().alert);
     ++counters_.judged;
+    if (fdr_.enabled) {
+      // Decided per time step across series; the per-record verdict above
+      // still governs alerted_weight, so learning does not wait for the step.
+      bound_alerted = r.alert.has_value();
+      r.alert.reset();
+      r.released = detect::fdr_offer(fdr_state_, fdr_, detect::fdr_candidate(obs, r.prediction->bounds,
+                                                                              model.settings().alert),
+                                     series_.size());
+      count_released(r.released);
+    }
     if (r.alert) ++(r.alert->side == AlertSide::high ? counters_.alerts_high : counters_.alerts_low);
+    const SeriesSettings& s = model.settings();
+    if (s.detect.shift || s.detect.low_run) {
+      r.detector_alerts = detect::run_detectors(detectors_[obs.series], obs, *r.prediction, s, limits_table_);
+      for (const Alert& a : r.detector_alerts) {
+        ++(a.side == AlertSide::high ? counters_.alerts_high : counters_.alerts_low);
+        ++(a.detector == detect::kShiftLabel ? counters_.alerts_shift : counters_.alerts_low_run);
+      }
+    }
   } else {
     r.kind = IngestResult::Kind::warming_up;
     ++counters_.warming_up;
+    if (fdr_.enabled) {
+      r.released = detect::fdr_tick(fdr_state_, fdr_, obs.time);
+      count_released(r.released);
+    }
   }
-  model.learn(obs);
+  // A record that raised any alert may enter training with a reduced weight
+  // (model.alerted_weight), so an outbreak does not become its own baseline.
+  const bool alerted = bound_alerted || r.alert || !r.detector_alerts.empty();
+  model.learn(obs, alerted ? model.settings().model.alerted_weight : 1.0);
   return r;
 }
 

@@ -10,10 +10,14 @@
 #include <memory>
 #include <optional>
 #include <string>
+#include <vector>
 
 #include "alert/alert.h"
 #include "core/observation.h"
 #include "core/reject.h"
+#include "detect/detectors.h"
+#include "detect/fdr.h"
+#include "detect/shift_cusum.h"
 #include "series/model_spec.h"
 #include "series/series_model.h"
 
@@ -35,6 +39,11 @@ struct IngestResult {
   Kind kind = Kind::rejected;
   std::optional<Prediction> prediction;  // when judged
   std::optional<Alert> alert;            // when judged and outside the bounds
+  std::vector<Alert> detector_alerts;    // when judged: alerts of the shift and low-run detectors, in that order
+  // With control across series (FdrSpec::enabled) `alert` stays empty: the
+  // bound's decisions are made per time step, when the step closes, and come
+  // back here from the first record of a later step (any series). See flush().
+  std::vector<Alert> released;
   std::optional<Rejection> rejection;    // when rejected
 };
 
@@ -43,16 +52,26 @@ struct EngineCounters {
   std::uint64_t judged = 0;
   std::uint64_t warming_up = 0;
   std::uint64_t alerts_high = 0;
-  std::uint64_t alerts_low = 0;
+  std::uint64_t alerts_low = 0;          // alerts_high and alerts_low count every detector's alerts
+  std::uint64_t alerts_shift = 0;        // of which from the shift CUSUM
+  std::uint64_t alerts_low_run = 0;      // of which from the low-count run detector
+  std::uint64_t alerts_fdr = 0;          // of which bound alerts decided across series (Benjamini-Hochberg)
   RejectCounts rejected;
 };
 
 class Engine {
  public:
   // `settings` must outlive the engine.
-  explicit Engine(const SettingsTable& settings, EngineLimits limits = {});
+  explicit Engine(const SettingsTable& settings, EngineLimits limits = {}, detect::FdrSpec fdr = {});
 
   IngestResult ingest(const Observation& obs);
+
+  // Closes the open time step of the control across series and returns its
+  // alerts (empty when that control is off). Replay calls it after the last
+  // record; a service at shutdown or when it knows a step is complete.
+  std::vector<Alert> flush();
+  // The state of the control across series (part of a checkpoint).
+  const detect::FdrState& fdr_state() const { return fdr_state_; }
 
   // Counts a refusal made before the engine (by a parser) so one place holds all counts.
   void count_rejection(RejectReason reason) { counters_.rejected.add(reason); }
@@ -60,6 +79,9 @@ class Engine {
   const EngineCounters& counters() const { return counters_; }
   std::size_t series_count() const { return series_.size(); }
   const SeriesModel* find(const std::string& series) const;
+  // The detector state of a series (nullptr when the series is unknown).
+  // Part of the state a checkpoint must keep.
+  const detect::DetectorState* detector_state(const std::string& series) const;
   // Series in id order.
   const std::map<std::string, std::unique_ptr<SeriesModel>>& series() const { return series_; }
 
@@ -72,10 +94,15 @@ class Engine {
 
  private:
   IngestResult reject(const Observation& obs, RejectReason reason, std::string detail);
+  void count_released(const std::vector<Alert>& alerts);
 
   const SettingsTable* settings_;
   EngineLimits limits_;
   std::map<std::string, std::unique_ptr<SeriesModel>> series_;
+  std::map<std::string, detect::DetectorState> detectors_;  // per-series detector state, same keys as series_
+  detect::FdrSpec fdr_;
+  detect::FdrState fdr_state_;
+  detect::LimitTable limits_table_;  // CUSUM limits cached by value (a speed-up, not state)
   EngineCounters counters_;
 };
 

@@ -8,6 +8,11 @@ namespace tallyd {
 
 std::uint64_t replay_feeds(FeedSet& feeds, Engine& engine, const ReplayOutputs& out) {
   std::uint64_t written = 0;
+  auto write = [&](const Alert& a) {
+    if (out.alerts_json) *out.alerts_json << alert_json(a) << '\n';
+    if (out.alerts_text) *out.alerts_text << alert_text(a) << '\n';
+    ++written;
+  };
   FeedItem item;
   while (feeds.next(item)) {
     if (!item.is_record()) {
@@ -23,11 +28,12 @@ std::uint64_t replay_feeds(FeedSet& feeds, Engine& engine, const ReplayOutputs& 
       continue;
     }
     if (out.on_record) out.on_record(obs, r);
-    if (!r.alert) continue;
-    if (out.alerts_json) *out.alerts_json << alert_json(*r.alert) << '\n';
-    if (out.alerts_text) *out.alerts_text << alert_text(*r.alert) << '\n';
-    ++written;
+    for (const Alert& a : r.released) write(a);
+    if (r.alert) write(*r.alert);
+    for (const Alert& a : r.detector_alerts) write(a);
   }
+  // The last time step of the control across series is complete once the feeds end.
+  for (const Alert& a : engine.flush()) write(a);
   return written;
 }
 

@@ -11,6 +11,7 @@
 
 #include "bounds/predictive.h"
 #include "core/time.h"
+#include "detect/detect_spec.h"
 #include "glm/family.h"
 
 namespace tallyd {
@@ -38,6 +39,14 @@ struct ModelSpec {
   Window window{Seconds{static_cast<std::int64_t>(2 * kDaysPerYear * kSecondsPerDay)}, 1000};
   std::size_t min_history = 20;          // records before any judgement (raised to #coefficients + 2)
   std::size_t refit_every = 1;           // refit after this many new records (1 = every record)
+  // Outbreak-resistant training (docs/detection.md). After each fit, records
+  // whose standardized Anscombe residual exceeds reweight_threshold get
+  // prior weight proportional to residual^-2 and the model is refitted once
+  // (Farrington et al. 1996 with the threshold of Noufaily et al. 2013).
+  bool reweight = true;                  // down-weight outlying records in each refit
+  double reweight_threshold = 2.58;      // standardized Anscombe residual above which a record is down-weighted
+  double alerted_weight = 1.0;           // prior weight of a record that raised an alert, in [0, 1] (1 = no change)
+  std::size_t guard_records = 0;         // newest records left out of the fit that judges the next record (0 = none)
 };
 
 enum class Direction { high, low, both };
@@ -57,6 +66,7 @@ struct AlertSpec {
 struct SeriesSettings {
   ModelSpec model;
   AlertSpec alert;
+  DetectSpec detect;  // shift CUSUM and low-count run (detect/detect_spec.h)
 };
 
 // Rules that pick settings by series id: the first rule whose glob matches

@@ -21,7 +21,9 @@ std::size_t SeriesModel::min_history() const {
   return std::max(settings_->model.min_history, static_cast<std::size_t>(p_) + 2);
 }
 
-bool SeriesModel::ready() const { return has_fit_ && records_.size() >= min_history(); }
+bool SeriesModel::ready() const {
+  return has_fit_ && records_.size() >= min_history() + settings_->model.guard_records;
+}
 
 std::optional<TimePoint> SeriesModel::last_time() const {
   if (records_.empty()) return std::nullopt;
@@ -83,7 +85,7 @@ void SeriesModel::learn(const Observation& obs, double weight) {
   }
   trim_window(obs.time);
   ++since_refit_;
-  if (records_.size() >= min_history() &&
+  if (records_.size() >= min_history() + settings_->model.guard_records &&
       (since_refit_ >= settings_->model.refit_every || !has_fit_)) {
     refit();
   }
@@ -105,8 +107,8 @@ void SeriesModel::trim_window(TimePoint latest) {
 }
 
 void SeriesModel::build_design(Eigen::MatrixXd& X, Eigen::VectorXd& y, Eigen::VectorXd& offset,
-                               Eigen::VectorXd& weights) const {
-  const std::size_t n = records_.size();
+                               Eigen::VectorXd& weights, std::size_t rows) const {
+  const std::size_t n = std::min(rows, records_.size());
   const std::size_t k = settings_->model.covariates.size();
   X.resize(static_cast<Eigen::Index>(n), p_);
   y.resize(static_cast<Eigen::Index>(n));
@@ -132,8 +134,12 @@ glm::FitOptions SeriesModel::fit_options() const {
 
 void SeriesModel::refit() {
   since_refit_ = 0;
-  if (records_.empty()) return;
-  build_design(X_, y_, offset_, weights_);
+  // The guard band: the newest guard_records records stay out of the fit
+  // that judges the next record, so an outbreak's first weeks cannot pull
+  // the baseline up before they have been judged a few more times.
+  const std::size_t guard = settings_->model.guard_records;
+  if (records_.size() <= guard) return;
+  build_design(X_, y_, offset_, weights_, records_.size() - guard);
 
   glm::FitOptions options = fit_options();
   options.null_deviance = false;  // not needed for judging; fit_report() asks for it
@@ -146,6 +152,27 @@ void SeriesModel::refit() {
   last_fit_note_ = result.note;
   // A failed fit keeps the previous coefficients; a non-converged one is used
   // only when there is nothing better.
+  if (result.status == glm::FitStatus::ok && settings_->model.reweight) {
+    // Outbreak-resistant refit: down-weight outlying records and fit once
+    // more from the first fit (Farrington et al. 1996; Noufaily et al. 2013).
+    Eigen::VectorXd resistant = resistant_weights(result);
+    if (resistant.size() > 0) {
+      glm::FitResult second = glm::fit_glm(X_, y_, offset_, resistant, options, &result.coefficients, true);
+      ++fits_done_;
+      if (second.status == glm::FitStatus::ok) {
+        // The weighted Pearson statistic loses the largest residuals, so the
+        // reweighted quasi-Poisson phi runs low even with no outbreak, and
+        // narrower bounds alarm more often. Keep the larger of the two
+        // dispersions (the mean stays resistant); measured in docs/detection.md.
+        if (settings_->model.family == glm::Family::quasipoisson && second.dispersion > 0 &&
+            result.dispersion > second.dispersion) {
+          second.covariance *= result.dispersion / second.dispersion;
+          second.dispersion = result.dispersion;
+        }
+        result = std::move(second);
+      }
+    }
+  }
   if (result.status == glm::FitStatus::ok ||
       (result.status == glm::FitStatus::not_converged && !has_fit_)) {
     fit_ = std::move(result);
@@ -164,10 +191,52 @@ void SeriesModel::release_workspace() {
   weights_.resize(0);
 }
 
+Eigen::VectorXd SeriesModel::resistant_weights(const glm::FitResult& fit) const {
+  const Eigen::Index n = X_.rows();
+  const glm::Family family = settings_->model.family;
+  const glm::Link link = settings_->model.link;
+  const double phi = family == glm::Family::quasipoisson && std::isfinite(fit.dispersion) && fit.dispersion > 0
+                         ? fit.dispersion
+                         : 1.0;
+  const bool nb = family == glm::Family::negbin && std::isfinite(fit.theta) && fit.theta > 0;
+  const double threshold = settings_->model.reweight_threshold;
+  Eigen::VectorXd w = weights_;
+  bool any = false;
+  for (Eigen::Index i = 0; i < n; ++i) {
+    if (weights_(i) <= 0) continue;
+    const Eigen::RowVectorXd x = X_.row(i);
+    const double eta = x.dot(fit.coefficients) + offset_(i);
+    const double mu = glm::link_inv(link, eta);
+    if (!(mu > 1e-12)) continue;
+    const double variance = nb ? mu + mu * mu / fit.theta : mu;
+    const double d = glm::mu_eta(link, eta);
+    // Leverage h = w x' (X'WX)^-1 x with Cov = phi (X'WX)^-1 for quasi-Poisson.
+    const double working = weights_(i) * d * d / variance;
+    const Eigen::VectorXd cx = fit.covariance * x.transpose();
+    const double h = std::clamp(working * x.dot(cx) / phi, 0.0, 0.99);
+    // Poisson Anscombe residual; its variance is about the dispersion index
+    // (phi, or 1 + mu / theta for NB2).
+    const double y = y_(i);
+    const double anscombe = 1.5 * (std::cbrt(y * y) - std::cbrt(mu * mu)) / std::pow(mu, 1.0 / 6.0);
+    const double index = nb ? 1 + mu / fit.theta : phi;
+    const double s = anscombe / std::sqrt(index * (1 - h));
+    if (s > threshold) {
+      w(i) = weights_(i) / (s * s);
+      any = true;
+    }
+  }
+  if (!any) return {};
+  // gamma: keep the total prior weight (Farrington et al. 1996).
+  const double total = w.sum();
+  if (!(total > 0)) return {};
+  w *= weights_.sum() / total;
+  return w;
+}
+
 glm::FitResult SeriesModel::fit_report() const {
   Eigen::MatrixXd X;
   Eigen::VectorXd y, offset, weights;
-  build_design(X, y, offset, weights);
+  build_design(X, y, offset, weights, records_.size());
   return glm::fit_glm(X, y, offset, weights, fit_options(), nullptr, true);
 }
 

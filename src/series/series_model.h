@@ -46,7 +46,8 @@ class SeriesModel {
   // The name of a covariate the model needs that `obs` lacks, or nullopt.
   std::optional<std::string> missing_covariate(const Observation& obs) const;
 
-  // True once the series has enough history and a usable fit to judge records.
+  // True once the series has enough history (min_history plus the guard
+  // band, model.guard_records) and a usable fit to judge records.
   bool ready() const;
 
   // Predictive bounds for `obs` from the current fit. Precondition: ready()
@@ -94,9 +95,15 @@ class SeriesModel {
   };
 
   void trim_window(TimePoint latest);
+  // The design of the oldest `rows` records of the window.
   void build_design(Eigen::MatrixXd& X, Eigen::VectorXd& y, Eigen::VectorXd& offset,
-                    Eigen::VectorXd& weights) const;
+                    Eigen::VectorXd& weights, std::size_t rows) const;
   glm::FitOptions fit_options() const;
+  // Prior weights for the resistant refit after `fit` of the current design
+  // (X_, y_, offset_, weights_): records with standardized Anscombe residual
+  // above model.reweight_threshold get weight / residual^2, all rescaled to
+  // the same total. Empty when no record is down-weighted.
+  Eigen::VectorXd resistant_weights(const glm::FitResult& fit) const;
   double row_for(TimePoint time, double exposure, const double* covariates,
                  RowRef row) const;
   std::vector<double> covariates_of(const Observation& obs) const;

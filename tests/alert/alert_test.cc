@@ -47,7 +47,8 @@ TEST_CASE("alert JSON has fixed keys, order and notation", "[alert]") {
   REQUIRE(a);
   CHECK(alert_json(*a) ==
         R"({"time":"2025-08-14T06:00:00Z","series":"orchard-n03","count":57,"expected":12.4100,"lower":3,"upper":31,)"
-        R"("p_value":2.113e-05,"direction":"high","exposure":7,"alpha":0.001,"detector":"bound"})");
+        R"("p_value":2.113e-05,"direction":"high","exposure":7,"alpha":0.001,"detector":"bound",)"
+        R"("statistic":2.113e-05})");
   a->series = "odd \"id\"\n";
   CHECK_THAT(alert_json(*a), Catch::Contains(R"("series":"odd \"id\"\n")"));
   CHECK_THAT(alert_text(*a), Catch::StartsWith("2025-08-14T06:00:00Z odd"));

@@ -89,6 +89,10 @@ TEST_CASE("every config error names the file, the line and the key", "[config]")
       {"[model]\ncovariates = [\"count\"]\n", "monitor.toml:2: model.covariates: 'count' is a reserved column"},
       {"[model\nfamily = 1\n", "monitor.toml:1:"},
       {"[model]\ntrend = \"yes\"\n", "monitor.toml:2: model.trend: must be true or false"},
+      {"[model]\nalerted_weight = 2\n", "monitor.toml:2: model.alerted_weight: must be a number between 0 and 1"},
+      {"[detect]\nshift_factor = 1\n", "monitor.toml:2: detect.shift_factor: must be a number above 1"},
+      {"[detect]\nlow_run_alpha = 0\n", "monitor.toml:2: detect.low_run_alpha: must be"},
+      {"[detect]\nshfit = true\n", "monitor.toml:2: detect.shfit: unknown key"},
   };
   for (const Case& c : cases) {
     auto r = parse_config(c.text, "monitor.toml");
@@ -96,6 +100,47 @@ TEST_CASE("every config error names the file, the line and the key", "[config]")
     REQUIRE_FALSE(r.ok());
     CHECK_THAT(r.error().message, Catch::Contains(c.expected));
   }
+}
+
+TEST_CASE("detector and resistant-training keys", "[config]") {
+  const char* text = R"(
+[model]
+reweight = false
+reweight_threshold = 3
+alerted_weight = 0.25
+guard_records = 3
+[detect]
+shift = true
+shift_factor = 1.5
+shift_arl_records = 1000
+low_run = true
+low_run_quantile = 0.2
+low_run_alpha = 0.0005
+[[series]]
+match = "sensor-*"
+detect.shift = false
+)";
+  auto r = parse_config(text, "monitor.toml");
+  REQUIRE(r.ok());
+  const SeriesSettings& d = r.value().settings.defaults;
+  CHECK_FALSE(d.model.reweight);
+  CHECK(d.model.reweight_threshold == 3);
+  CHECK(d.model.alerted_weight == 0.25);
+  CHECK(d.model.guard_records == 3);
+  CHECK(d.detect.shift);
+  CHECK(d.detect.shift_factor == 1.5);
+  CHECK(d.detect.shift_arl_records == 1000);
+  CHECK(d.detect.low_run);
+  CHECK(d.detect.low_run_quantile == 0.2);
+  CHECK(d.detect.low_run_alpha == 0.0005);
+  const SeriesSettings& sensor = r.value().settings.for_series("sensor-2");
+  CHECK_FALSE(sensor.detect.shift);
+  CHECK(sensor.detect.low_run);  // inherited from the defaults
+  // Defaults when nothing is set.
+  auto empty = parse_config("", "empty.toml");
+  REQUIRE(empty.ok());
+  CHECK(empty.value().settings.defaults.model.reweight);
+  CHECK_FALSE(empty.value().settings.defaults.detect.shift);
 }
 
 TEST_CASE("a missing config file is an error naming it", "[config]") {

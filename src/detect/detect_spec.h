@@ -1,0 +1,27 @@
+// Options of the detectors that run beside the single-count bound: the
+// sustained-shift CUSUM and the low-count run. Filled by config/ (`[detect]`
+// and `[[series]] detect.*`); see docs/detection.md and docs/config.md.
+#pragma once
+
+#include <cstdint>
+
+namespace tallyd {
+
+struct DetectSpec {
+  // Sustained shift: two one-sided CUSUMs of log-likelihood ratios (Lucas
+  // 1985 for Poisson counts, the NB2 analogue for overdispersed series), for
+  // a rate multiplied by `shift_factor` (high side) or by 1 / shift_factor
+  // (low side). Sides follow alert.direction.
+  bool shift = false;               // run the shift CUSUM
+  double shift_factor = 2.0;        // rate ratio to detect, > 1 (dimensionless)
+  double shift_arl_records = 500;   // target in-control average run length ARL0, in judged records, per side
+  // Low-count run: a record is "low" when its count is at or below its low
+  // threshold c (the largest count with P(Y <= c) <= low_run_quantile, or 0);
+  // an alert is raised when the product of P(Y <= c) over the current run of
+  // low records falls to low_run_alpha or below.
+  bool low_run = false;             // run the low-count run detector
+  double low_run_quantile = 0.1;    // predictive quantile that makes a record "low", in (0, 0.5]
+  double low_run_alpha = 0.001;     // joint probability of the run that raises an alert, in (0, 0.5)
+};
+
+}  // namespace tallyd
