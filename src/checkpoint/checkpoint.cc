@@ -87,10 +87,10 @@ Status write_file(const std::string& path, const Engine& engine, const Marks& ma
 }
 
 Result<Restored> decode(std::string_view text, std::string_view name, const SettingsTable& settings,
-                        EngineLimits limits) {
+                        EngineLimits limits, detect::FdrSpec fdr) {
   const std::size_t eol = text.find('\n');
   if (eol == std::string_view::npos || text.substr(0, eol) != kFirstLine)
-    return Error{fmt::format("{}: not a tallyd checkpoint of format version 1 (first line is '{}'); "
+    return Error{fmt::format("{}: not a tallyd checkpoint of format version 2 (first line is '{}'); "
                              "refusing to load it",
                              name, text.substr(0, std::min<std::size_t>(eol, 60)))};
   // The seal is the last line; anything cut short has none (or a wrong one).
@@ -141,7 +141,7 @@ Result<Restored> decode(std::string_view text, std::string_view name, const Sett
     if (f.format < -1 || f.format > 1) r.fail("bad file format code");
     out.marks.files.push_back(std::move(f));
   }
-  out.engine = std::make_unique<Engine>(settings, limits);
+  out.engine = std::make_unique<Engine>(settings, limits, fdr);
   out.engine->load_state(r);
   if (!r.failed() && !r.at_end()) r.fail("unexpected data after the engine state");
   if (r.failed())
@@ -151,7 +151,7 @@ Result<Restored> decode(std::string_view text, std::string_view name, const Sett
 }
 
 Result<std::optional<Restored>> read_file(const std::string& path, const SettingsTable& settings,
-                                          EngineLimits limits) {
+                                          EngineLimits limits, detect::FdrSpec fdr) {
   std::ifstream in(path, std::ios::binary);
   if (!in) {
     if (!std::filesystem::exists(path)) return std::optional<Restored>{};
@@ -159,7 +159,7 @@ Result<std::optional<Restored>> read_file(const std::string& path, const Setting
   }
   std::ostringstream text;
   text << in.rdbuf();
-  auto r = decode(text.str(), path, settings, limits);
+  auto r = decode(text.str(), path, settings, limits, fdr);
   if (!r) return r.error();
   return std::optional<Restored>{std::move(r).value()};
 }

@@ -1,7 +1,7 @@
 // Checkpoints: the service's durable state in one file, replaced atomically.
 //
 // File layout (text, see core/state_codec.h for the token layout):
-//   line 1   "tallyd-checkpoint 1"                  format name and version
+//   line 1   "tallyd-checkpoint 2"                  format name and version
 //   body     "marks" section (alert log length, one line per followed file),
 //            then the engine state (counters, every series' model and history)
 //   last     "seal <16 hex digits> <body bytes>"    FNV-1a 64 of the body
@@ -25,7 +25,7 @@
 
 namespace tallyd::checkpoint {
 
-inline constexpr std::string_view kFirstLine = "tallyd-checkpoint 1";
+inline constexpr std::string_view kFirstLine = "tallyd-checkpoint 2";  // 2: detector and FDR state added
 
 // Where one followed file had been read to: the byte after the last complete
 // line handed to the engine.
@@ -58,11 +58,12 @@ struct Restored {
 
 // Decodes a checkpoint made for engines with `settings` (which must outlive
 // the engine returned). Errors say what is wrong and where; `name` is used in them.
+// `fdr` is the control across series the engine runs with (its pending step is in the file).
 Result<Restored> decode(std::string_view text, std::string_view name, const SettingsTable& settings,
-                        EngineLimits limits);
+                        EngineLimits limits, detect::FdrSpec fdr = {});
 
 // Reads `path`. nullopt when there is no file at all (a first start).
 Result<std::optional<Restored>> read_file(const std::string& path, const SettingsTable& settings,
-                                          EngineLimits limits);
+                                          EngineLimits limits, detect::FdrSpec fdr = {});
 
 }  // namespace tallyd::checkpoint

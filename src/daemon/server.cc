@@ -109,7 +109,7 @@ Status Server::restore_state() {
     if (ec) return Error{fmt::format("{}: cannot set the checkpoint aside: {}", sc.checkpoint_path, ec.message())};
     spdlog::warn("--fresh: the checkpoint was moved to {}; starting with no series history", aside);
   } else {
-    auto restored = checkpoint::read_file(sc.checkpoint_path, config_->settings, config_->limits);
+    auto restored = checkpoint::read_file(sc.checkpoint_path, config_->settings, config_->limits, config_->fdr);
     if (!restored)
       return Error{restored.error().message +
                    "\n(to start with no history instead, run again with --fresh; the checkpoint is then set aside)"};
@@ -124,7 +124,7 @@ Status Server::restore_state() {
                    sc.checkpoint_path, r.marks.alert_log_bytes);
     }
   }
-  if (!engine) engine = std::make_unique<Engine>(config_->settings, config_->limits);
+  if (!engine) engine = std::make_unique<Engine>(config_->settings, config_->limits, config_->fdr);
   intake_ = std::make_unique<Intake>(std::move(engine), *alert_log_);
   return Ok{};
 }
@@ -270,7 +270,7 @@ void Server::reload() {
   // The series carry over through their saved state, read with the new
   // settings: a model whose coefficient count changed cannot carry over.
   const std::string state = checkpoint::encode(intake_->engine(), checkpoint::Marks{});
-  auto moved = checkpoint::decode(state, "running state", next->settings, next->limits);
+  auto moved = checkpoint::decode(state, "running state", next->settings, next->limits, next->fdr);
   if (!moved) {
     ++reload_failures_;
     spdlog::error("reload refused, the running config is kept: the running series do not fit the new model: {}",
