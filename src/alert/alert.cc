@@ -17,6 +17,10 @@ std::optional<Alert> judge_count(const Observation& obs, const bounds::Bounds& b
     p = b.p_low;
   }
   if (!side) return std::nullopt;
+  return bound_alert(obs, b, *side, p, spec.alpha);
+}
+
+Alert bound_alert(const Observation& obs, const bounds::Bounds& b, AlertSide side, double p_value, double alpha) {
   Alert a;
   a.time = obs.time;
   a.series = obs.series;
@@ -25,10 +29,10 @@ std::optional<Alert> judge_count(const Observation& obs, const bounds::Bounds& b
   a.expected = b.expected;
   a.lower = b.lower;
   a.upper = b.upper;
-  a.p_value = p;
-  a.alpha = spec.alpha;
-  a.side = *side;
-  a.statistic = p;
+  a.p_value = p_value;
+  a.alpha = alpha;
+  a.side = side;
+  a.statistic = p_value;
   return a;
 }
 

@@ -33,6 +33,10 @@ struct Alert {
   double statistic = 0;
 };
 
+// An alert for `obs` carrying its bounds, on `side` with tail probability
+// `p_value` (also its statistic), judged at `alpha`; detector "bound". Pure.
+Alert bound_alert(const Observation& obs, const bounds::Bounds& b, AlertSide side, double p_value, double alpha);
+
 // The verdict on one count: an alert when the count lies beyond a bound on a
 // side the spec watches (count > upper with p_high <= alpha, or count < lower
 // with p_low <= alpha), else nullopt. Pure.

@@ -21,26 +21,19 @@ std::vector<double> bh_adjust(const std::vector<double>& p_values) {
 }
 
 FdrCandidate fdr_candidate(const Observation& obs, const bounds::Bounds& b, const AlertSpec& spec) {
-  FdrCandidate c;
-  Alert& a = c.alert;
-  a.time = obs.time;
-  a.series = obs.series;
-  a.count = obs.count;
-  a.exposure = obs.exposure;
-  a.expected = b.expected;
-  a.lower = b.lower;
-  a.upper = b.upper;
-  a.alpha = spec.alpha;
-  if (spec.direction == Direction::high) {
-    a.side = AlertSide::high;
-    a.p_value = b.p_high;
-  } else if (spec.direction == Direction::low) {
-    a.side = AlertSide::low;
-    a.p_value = b.p_low;
-  } else {
-    a.side = b.p_high <= b.p_low ? AlertSide::high : AlertSide::low;
-    a.p_value = std::min(1.0, 2 * std::min(b.p_high, b.p_low));
+  AlertSide side = AlertSide::high;
+  double p = b.p_high;
+  if (spec.direction == Direction::low) {
+    side = AlertSide::low;
+    p = b.p_low;
+  } else if (spec.direction == Direction::both) {
+    side = b.p_high <= b.p_low ? AlertSide::high : AlertSide::low;
+    p = std::min(1.0, 2 * std::min(b.p_high, b.p_low));
   }
+  FdrCandidate c{bound_alert(obs, b, side, p, spec.alpha)};
+  // The statistic is set when the step closes (the adjusted p-value); until
+  // then the candidate keeps the default, as it always has.
+  c.alert.statistic = 0;
   return c;
 }
 
