@@ -5,6 +5,8 @@
 
 #include "feed/line_splitter.h"
 
+#include "daemon/listen.h"
+
 namespace tallyd::daemon {
 namespace {
 
@@ -82,12 +84,7 @@ TcpSource::TcpSource(asio::io_context& io, const SourceConfig& config, std::size
       intake_(&intake),
       figures_(&figures),
       budget_(&budget) {
-  asio::ip::tcp::endpoint ep(asio::ip::make_address(config.address), config.port);
-  acceptor_.open(ep.protocol());
-  acceptor_.set_option(asio::ip::tcp::acceptor::reuse_address(true));
-  acceptor_.bind(ep);
-  acceptor_.listen();
-  port_ = acceptor_.local_endpoint().port();
+  port_ = listen_on(acceptor_, config.address, config.port);
   accept();
 }
 

@@ -2,6 +2,8 @@
 
 #include <fmt/format.h>
 
+#include "daemon/listen.h"
+
 namespace tallyd::daemon {
 namespace {
 
@@ -65,12 +67,7 @@ class Exchange : public std::enable_shared_from_this<Exchange> {
 
 StatusHttp::StatusHttp(asio::io_context& io, const std::string& address, std::uint16_t port, Handler handler)
     : acceptor_(io), handler_(std::move(handler)) {
-  asio::ip::tcp::endpoint ep(asio::ip::make_address(address), port);
-  acceptor_.open(ep.protocol());
-  acceptor_.set_option(asio::ip::tcp::acceptor::reuse_address(true));
-  acceptor_.bind(ep);
-  acceptor_.listen();
-  port_ = acceptor_.local_endpoint().port();
+  port_ = listen_on(acceptor_, address, port);
   accept();
 }
 
