@@ -14,10 +14,13 @@ std::string quoted(const std::string& s) { return nlohmann::json(s).dump(); }
 std::string alert_json(const Alert& a) {
   // Fixed notation: expected to 4 significant decimals, p-values to 4
   // significant digits; fmt's formatting is locale-independent and exact.
-  return fmt::format(
+  std::string line = fmt::format(
       R"({{"time":"{}","series":{},"count":{},"expected":{:.4f},"lower":{},"upper":{},"p_value":{:.4g},"direction":"{}","exposure":{:.6g},"alpha":{:.6g},"detector":"{}","statistic":{:.6g}}})",
       format_time(a.time), quoted(a.series), a.count, a.expected, a.lower, a.upper, a.p_value,
       to_string(a.side), a.exposure, a.alpha, a.detector, a.statistic);
+  // Extra keys go after the fixed ones, so every line starts the same way.
+  if (a.last_seen) line.insert(line.size() - 1, fmt::format(R"(,"last_seen":"{}")", format_time(*a.last_seen)));
+  return line;
 }
 
 std::string alert_text(const Alert& a) {
@@ -28,6 +31,14 @@ std::string alert_text(const Alert& a) {
   if (a.detector == "low_run")
     return fmt::format("{} {} LOW run of {:.0f} low counts, joint probability {:.2g} (count {}, expected {:.1f})",
                        format_time(a.time), a.series, a.statistic, a.p_value, a.count, a.expected);
+  if (a.detector == "silence")
+    return fmt::format("{} {} SILENT: no record since {} (usual interval {})", format_time(a.time), a.series,
+                       a.last_seen ? format_time(*a.last_seen) : "?",
+                       format_duration(Seconds{static_cast<std::int64_t>(a.statistic)}));
+  if (a.detector == "silence_end")
+    return fmt::format("{} {} REPORTING again after {} without a record (count {}, exposure {:.6g})",
+                       format_time(a.time), a.series, format_duration(Seconds{static_cast<std::int64_t>(a.statistic)}),
+                       a.count, a.exposure);
   if (a.side == AlertSide::high)
     return fmt::format("{} {} HIGH count {} > upper {} (expected {:.1f}, p={:.2g}, exposure {:.6g})",
                        format_time(a.time), a.series, a.count, a.upper, a.expected, a.p_value, a.exposure);
