@@ -1,7 +1,7 @@
 // Checkpoints: the service's durable state in one file, replaced atomically.
 //
 // File layout (text, see core/state_codec.h for the token layout):
-//   line 1   "tallyd-checkpoint 2"                  format name and version
+//   line 1   "tallyd-checkpoint 3"                  format name and version
 //   body     "marks" section (alert log length, one line per followed file),
 //            then the engine state (counters, every series' model and history)
 //   last     "seal <16 hex digits> <body bytes>"    FNV-1a 64 of the body
@@ -25,7 +25,9 @@
 
 namespace tallyd::checkpoint {
 
-inline constexpr std::string_view kFirstLine = "tallyd-checkpoint 2";  // 2: detector and FDR state added
+// 2: detector and FDR state added; 3: held records (arrival hold) and silence state added.
+// Any other first line, older versions included, is refused (see decode).
+inline constexpr std::string_view kFirstLine = "tallyd-checkpoint 3";
 
 // Where one followed file had been read to: the byte after the last complete
 // line handed to the engine.

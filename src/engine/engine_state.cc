@@ -1,5 +1,6 @@
 // Saving and restoring the whole engine: counters, the cross-series
-// Benjamini-Hochberg gate, then each series in id order with its detector state.
+// Benjamini-Hochberg gate, the arrival hold and the silence watch, then each
+// series in id order with its detector state.
 #include <fmt/format.h>
 
 #include "core/state_codec.h"
@@ -62,6 +63,7 @@ void Engine::save_state(StateWriter& w) const {
                           counters_.alerts_low})
     w.u64(v);
   for (std::uint64_t v : {counters_.alerts_shift, counters_.alerts_low_run, counters_.alerts_fdr}) w.u64(v);
+  for (std::uint64_t v : {counters_.alerts_silence, counters_.silence_ends, counters_.duplicates_replaced}) w.u64(v);
   w.u64(kRejectReasonCount);
   for (std::uint64_t v : counters_.rejected.by_reason) w.u64(v);
   w.newline();
@@ -71,6 +73,9 @@ void Engine::save_state(StateWriter& w) const {
   w.u64(fdr_state_.pending.size());
   w.newline();
   for (const detect::FdrCandidate& c : fdr_state_.pending) save_alert(w, c.alert);
+  // Held records were accepted: they are state like the models.
+  hold_.save_state(w);
+  silence_.save_state(w);
   w.tag("series_count");
   w.u64(series_.size());
   w.newline();
@@ -101,6 +106,9 @@ void Engine::load_state(StateReader& r) {
   counters_.alerts_shift = r.u64();
   counters_.alerts_low_run = r.u64();
   counters_.alerts_fdr = r.u64();
+  counters_.alerts_silence = r.u64();
+  counters_.silence_ends = r.u64();
+  counters_.duplicates_replaced = r.u64();
   const std::uint64_t reasons = r.u64();
   if (!r.failed() && reasons != kRejectReasonCount)
     r.fail(fmt::format("{} rejection reasons saved, this build knows {}", reasons, kRejectReasonCount));
@@ -111,6 +119,10 @@ void Engine::load_state(StateReader& r) {
   fdr_state_.closed_through = load_optional(r);
   const std::uint64_t pending = r.u64();
   for (std::uint64_t i = 0; i < pending && !r.failed(); ++i) fdr_state_.pending.push_back(detect::FdrCandidate{load_alert(r)});
+  hold_ = ArrivalHold(limits_.arrival, limits_.max_series);
+  hold_.load_state(r);
+  silence_ = detect::SilenceWatch{};
+  silence_.load_state(r);
   r.expect("series_count");
   const std::uint64_t n = r.u64();
   series_.clear();
