@@ -43,6 +43,44 @@ void Intake::refuse(const Rejection& r, SourceFigures& figures) {
   log_refusal(r);
 }
 
+void Intake::write_alert(const Alert& a) {
+  std::string json = alert_json(a);
+  const std::string text = alert_text(a);
+  if (Status s = log_->write(json, text); !s) {
+    ++write_failures_;
+    spdlog::error("{}", s.error().message);
+  }
+  spdlog::info("alert: {}", text);
+  last_alerts_.push_back(std::move(json));
+  if (last_alerts_.size() > 20) last_alerts_.pop_front();
+}
+
+// Same lines in the same order as replay_feeds (replay/replay.cc), so serving a
+// file and replaying it write the same alert log.
+void Intake::emit(const OfferResult& o, SourceFigures* figures) {
+  if (o.refused) {
+    if (figures) ++figures->rejected;
+    log_refusal(*o.refused);
+  }
+  for (const Released& rel : o.released) {
+    for (const Alert& a : rel.silence) write_alert(a);
+    const IngestResult& r = rel.result;
+    if (r.rejection) {
+      // A held record is refused long after its source read it; it is counted by reason in the engine.
+      if (figures) ++figures->rejected;
+      log_refusal(*r.rejection);
+      continue;
+    }
+    if (r.recovery) write_alert(*r.recovery);
+    for (const Alert& a : r.released) write_alert(a);
+    if (r.alert) write_alert(*r.alert);
+    for (const Alert& a : r.detector_alerts) write_alert(a);
+  }
+  for (const Alert& a : o.silence) write_alert(a);
+}
+
+void Intake::tick(TimePoint now) { emit(engine_->tick(now), nullptr); }
+
 void Intake::offer(ParseOutcome& outcome, SourceFigures& figures, SteadyTime arrival) {
   switch (outcome.kind()) {
     case LineKind::skip: return;
@@ -50,21 +88,7 @@ void Intake::offer(ParseOutcome& outcome, SourceFigures& figures, SteadyTime arr
     case LineKind::record: break;
   }
   ++figures.records;
-  IngestResult r = engine_->ingest(outcome.record());
-  if (r.rejection) {
-    ++figures.rejected;
-    log_refusal(*r.rejection);
-  } else if (r.alert) {
-    std::string json = alert_json(*r.alert);
-    const std::string text = alert_text(*r.alert);
-    if (Status s = log_->write(json, text); !s) {
-      ++write_failures_;
-      spdlog::error("{}", s.error().message);
-    }
-    spdlog::info("alert: {}", text);
-    last_alerts_.push_back(std::move(json));
-    if (last_alerts_.size() > 20) last_alerts_.pop_front();
-  }
+  emit(engine_->offer(outcome.record()), &figures);
   const std::chrono::duration<double> took = std::chrono::steady_clock::now() - arrival;
   latency_.add(took.count());
 }

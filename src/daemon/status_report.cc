@@ -42,6 +42,8 @@ std::string Server::status_json() const {
     rej[std::string(reject_label(static_cast<RejectReason>(i)))] = c.rejected.by_reason[i];
   j["rejected"] = rej;
   j["alerts"] = {{"high", c.alerts_high}, {"low", c.alerts_low}};
+  j["silence"] = {{"alerts", c.alerts_silence}, {"ended", c.silence_ends}, {"silent_now", e.silence().silent_count()}};
+  j["arrival"] = {{"held", e.held_count()}, {"duplicates_replaced", c.duplicates_replaced}};
   j["alert_log"] = {{"path", alert_log_->path()}, {"bytes", alert_log_->bytes()}};
   j["checkpoint"] = {{"path", config_->service.checkpoint_path},
                      {"written", checkpoints_written_},
@@ -90,6 +92,10 @@ std::string Server::metrics_text() const {
   m += "# TYPE tallyd_alerts counter\n# HELP tallyd_alerts Alerts written, by direction.\n";
   m += fmt::format("tallyd_alerts_total{{direction=\"high\"}} {}\n", c.alerts_high);
   m += fmt::format("tallyd_alerts_total{{direction=\"low\"}} {}\n", c.alerts_low);
+  m += "# TYPE tallyd_held_records gauge\n# HELP tallyd_held_records Records held back for late arrivals ([arrival]).\n";
+  m += fmt::format("tallyd_held_records {}\n", e.held_count());
+  m += "# TYPE tallyd_silent_series gauge\n# HELP tallyd_silent_series Series reported silent and not heard from since.\n";
+  m += fmt::format("tallyd_silent_series {}\n", e.silence().silent_count());
   m += "# TYPE tallyd_series gauge\n# HELP tallyd_series Series with a model.\n";
   m += fmt::format("tallyd_series {}\n", e.series_count());
   m += "# TYPE tallyd_checkpoint_age_seconds gauge\n# HELP tallyd_checkpoint_age_seconds Seconds since the last checkpoint was written.\n";

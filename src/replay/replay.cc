@@ -13,6 +13,26 @@ std::uint64_t replay_feeds(FeedSet& feeds, Engine& engine, const ReplayOutputs& 
     if (out.alerts_text) *out.alerts_text << alert_text(a) << '\n';
     ++written;
   };
+  auto judged = [&](const Observation& obs, const IngestResult& r) {
+    if (r.rejection) {
+      if (out.on_rejection) out.on_rejection(*r.rejection);
+      return;
+    }
+    if (out.on_record) out.on_record(obs, r);
+    if (r.recovery) write(*r.recovery);
+    for (const Alert& a : r.released) write(a);
+    if (r.alert) write(*r.alert);
+    for (const Alert& a : r.detector_alerts) write(a);
+  };
+  // Silence and late-record handling live in Engine::offer; this writes what comes out, in order.
+  auto emit = [&](const OfferResult& o) {
+    if (o.refused && out.on_rejection) out.on_rejection(*o.refused);
+    for (const Released& rel : o.released) {
+      for (const Alert& a : rel.silence) write(a);
+      judged(rel.record, rel.result);
+    }
+    for (const Alert& a : o.silence) write(a);
+  };
   FeedItem item;
   while (feeds.next(item)) {
     if (!item.is_record()) {
@@ -21,17 +41,10 @@ std::uint64_t replay_feeds(FeedSet& feeds, Engine& engine, const ReplayOutputs& 
       if (out.on_rejection) out.on_rejection(*bad);
       continue;
     }
-    const Observation& obs = item.record();
-    IngestResult r = engine.ingest(obs);
-    if (r.rejection) {
-      if (out.on_rejection) out.on_rejection(*r.rejection);
-      continue;
-    }
-    if (out.on_record) out.on_record(obs, r);
-    for (const Alert& a : r.released) write(a);
-    if (r.alert) write(*r.alert);
-    for (const Alert& a : r.detector_alerts) write(a);
+    emit(engine.offer(item.record()));
   }
+  // Records still held for late arrivals are due once the feeds end.
+  emit(engine.drain());
   // The last time step of the control across series is complete once the feeds end.
   for (const Alert& a : engine.flush()) write(a);
   return written;
