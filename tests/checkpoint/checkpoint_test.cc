@@ -189,7 +189,7 @@ TEST_CASE("a format 2 checkpoint (before episodes) is read with no episode open"
   const MonitorConfig config = demo_config("moth_traps.toml");
   const std::vector<Observation> records = demo_records("moth_traps.csv");
   Engine engine(config.settings, config.limits);
-  alerts_of(engine, records, 0, 600);
+  alerts_of(engine, records, 0, records.size());
   REQUIRE(engine.episodes().totals().opened > 0);
   const std::string v3 = checkpoint::encode(engine, checkpoint::Marks{});
   // Rebuild the file as format 2 wrote it: the same body without the episode
