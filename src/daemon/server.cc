@@ -297,7 +297,7 @@ void Server::reload() {
   next->service = config_->service;  // sources, outputs, ports: at the next start
   config_ = std::move(next);
   ++reloads_;
-  spdlog::info("config reloaded from {} (model, alert and limits tables; [[source]], [output], [checkpoint], "
+  spdlog::info("config reloaded from {} (model, alert, fdr and limits tables; [[source]], [output], [checkpoint], "
                "[status] and [intake] changes take effect at the next start)",
                options_.config_path);
 }

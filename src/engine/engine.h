@@ -73,10 +73,12 @@ class Engine {
 
   // Closes the open time step of the control across series and returns its
   // alerts (empty when that control is off). Replay calls it after the last
-  // record; a service at shutdown or when it knows a step is complete.
+  // record; the service when daemon/step_release.h says the step is due
+  // (not at shutdown: the open step is kept in the checkpoint).
   std::vector<Alert> flush();
   // Open episodes and totals (part of a checkpoint). Every alert the engine
-  // returns has passed through this tracker, in the order it is returned.
+  // returns has passed through this tracker, in the order it is returned; a
+  // new way of returning alerts must call episodes_.on_alert on each as well.
   const EpisodeTracker& episodes() const { return episodes_; }
   // The state of the control across series (part of a checkpoint).
   const detect::FdrState& fdr_state() const { return fdr_state_; }
