@@ -2,7 +2,8 @@
 series is released by the service's rule (docs/service.md), not left waiting;
 a graceful stop keeps it in the checkpoint instead of releasing it early; and
 the final alert log equals `tallyd replay` of the same complete file (the
-reference, which releases the last step at the end of the feed). Episode
+reference, which releases the last step at the end of the feed), shift
+CUSUM alerts and episode lines included. Episode
 figures in /metrics are checked against a direct count from the alert log."""
 import json
 import os
@@ -35,6 +36,8 @@ family = "poisson"
 min_history = 20
 [alert]
 direction = "high"
+[detect]
+shift = true
 [fdr]
 rate = 0.05
 step = "7d"
@@ -50,6 +53,9 @@ with open(ref) as f:
 last_week = [l for l in ref_lines if '"time":"2025-11-27T00:01:00Z"' in l and '"detector":"bound_fdr"' in l]
 if len(last_week) != 1:
     fail("the reference should end with the week-47 spike released at the end of the feed: %s" % ref_lines[-3:])
+# The shift CUSUM's alerts come with their record (serve once wrote only bound alerts).
+if not any('"detector":"shift"' in l for l in ref_lines):
+    fail("the reference has no shift alert: the test would not cover detector alerts in serve")
 
 def write_config(idle):
     with open(config, "w") as f:
