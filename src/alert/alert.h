@@ -14,6 +14,20 @@ namespace tallyd {
 enum class AlertSide { high, low };
 std::string_view to_string(AlertSide s);
 
+// Where an alert stands in its episode (alert/episode_tracker.h).
+enum class EpisodeStep {
+  opened,     // the first alert of a new episode; JSON word "new"
+  continued,  // a later alert of an episode already open; JSON word "ongoing"
+};
+std::string_view to_string(EpisodeStep s);
+
+// The episode an alert belongs to: set by the episode tracker when the alert
+// is written, absent before (e.g. while it waits in the Benjamini-Hochberg gate).
+struct EpisodeTag {
+  std::string id;  // "<series>/<direction>/<n>", n counting that series' episodes in that direction from 1
+  EpisodeStep step = EpisodeStep::opened;
+};
+
 struct Alert {
   TimePoint time;
   std::string series;
@@ -32,8 +46,9 @@ struct Alert {
   // low_run - the number of records in the run; silence - the usual interval
   // in seconds; silence_end - seconds since the series' previous record.
   double statistic = 0;
+  std::optional<EpisodeTag> episode;  // set by the episode tracker; written after every other key
   // Silence lines only (detect/silence.h; detector "silence" or "silence_end"):
-  // the series' last record before the silence. Written as an extra key.
+  // the series' last record before the silence. Written after the episode keys.
   std::optional<TimePoint> last_seen;
 };
 

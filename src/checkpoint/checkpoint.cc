@@ -94,7 +94,7 @@ Result<Restored> decode(std::string_view text, std::string_view name, const Sett
     // An older or newer tallyd's checkpoint is named as such: the operator
     // decides whether to start fresh (--fresh) or run the version that wrote it.
     const bool other_version = first.substr(0, 18) == "tallyd-checkpoint ";
-    return Error{fmt::format("{}: not a tallyd checkpoint of format version 3 (first line is '{}'); "
+    return Error{fmt::format("{}: not a tallyd checkpoint of format version 4 (first line is '{}'); "
                              "refusing to load it{}",
                              name, first,
                              other_version ? " (it was written by another tallyd version, whose state this one "

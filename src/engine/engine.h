@@ -13,6 +13,7 @@
 #include <vector>
 
 #include "alert/alert.h"
+#include "alert/episode_tracker.h"
 #include "core/observation.h"
 #include "core/reject.h"
 #include "detect/detectors.h"
@@ -51,6 +52,10 @@ struct IngestResult {
   // When accepted and its series had been reported silent: the recovery line
   // (detect/silence.h), to be written before the alerts above.
   std::optional<Alert> recovery;
+  // Episodes this record closed (when judged): it completed a run of
+  // alert.episode_close_records quiet records in their direction. Every alert
+  // above carries its episode (Alert::episode); see alert/episode_tracker.h.
+  std::vector<EpisodeEnd> closed;
 };
 
 // One record released by the arrival hold and what ingest made of it.
@@ -111,8 +116,13 @@ class Engine {
 
   // Closes the open time step of the control across series and returns its
   // alerts (empty when that control is off). Replay calls it after the last
-  // record; a service at shutdown or when it knows a step is complete.
+  // record; the service when daemon/step_release.h says the step is due
+  // (not at shutdown: the open step is kept in the checkpoint).
   std::vector<Alert> flush();
+  // Open episodes and totals (part of a checkpoint). Every alert the engine
+  // returns has passed through this tracker, in the order it is returned; a
+  // new way of returning alerts must call episodes_.on_alert on each as well.
+  const EpisodeTracker& episodes() const { return episodes_; }
   // The state of the control across series (part of a checkpoint).
   const detect::FdrState& fdr_state() const { return fdr_state_; }
 
@@ -139,6 +149,9 @@ class Engine {
   IngestResult reject(const Observation& obs, RejectReason reason, std::string detail);
   void count_released(const std::vector<Alert>& alerts);
   void judge_released(std::vector<Observation>& ready, OfferResult& out);
+  // Passes r's alerts, in output order, and then the judged record itself
+  // through the episode tracker.
+  void track(IngestResult& r, const Observation& obs, std::uint32_t close_after);
 
   const SettingsTable* settings_;
   EngineLimits limits_;
@@ -150,6 +163,7 @@ class Engine {
   EngineCounters counters_;
   ArrivalHold hold_;
   detect::SilenceWatch silence_;
+  EpisodeTracker episodes_;
 };
 
 }  // namespace tallyd

@@ -7,6 +7,9 @@ namespace tallyd {
 
 std::vector<Alert> Engine::advance_clock(TimePoint now) {
   std::vector<Alert> out = silence_.advance(now);
+  // Like every alert the engine returns, a silence alert opens or continues
+  // its series' low episode (engine.h).
+  for (Alert& a : out) episodes_.on_alert(a);
   counters_.alerts_low += out.size();
   counters_.alerts_silence += out.size();
   return out;

@@ -1,6 +1,6 @@
 // Saving and restoring the whole engine: counters, the cross-series
 // Benjamini-Hochberg gate, the arrival hold and the silence watch, then each
-// series in id order with its detector state.
+// series in id order with its detector state, then the episode tracker.
 #include <fmt/format.h>
 
 #include "core/state_codec.h"
@@ -94,6 +94,7 @@ void Engine::save_state(StateWriter& w) const {
     w.u64(d.run_records);
     w.newline();
   }
+  episodes_.save_state(w);
 }
 
 void Engine::load_state(StateReader& r) {
@@ -146,6 +147,8 @@ void Engine::load_state(StateReader& r) {
     detectors_.emplace(id, d);
     series_.emplace(std::move(id), std::move(model));
   }
+  episodes_ = EpisodeTracker{};
+  if (!r.failed()) episodes_.load_state(r);
 }
 
 }  // namespace tallyd

@@ -2,36 +2,31 @@
 
 #include <fmt/format.h>
 
-#include "alert/alert_format.h"
+#include "engine/output_lines.h"
 
 namespace tallyd {
 
 std::uint64_t replay_feeds(FeedSet& feeds, Engine& engine, const ReplayOutputs& out) {
   std::uint64_t written = 0;
-  auto write = [&](const Alert& a) {
-    if (out.alerts_json) *out.alerts_json << alert_json(a) << '\n';
-    if (out.alerts_text) *out.alerts_text << alert_text(a) << '\n';
-    ++written;
-  };
-  auto judged = [&](const Observation& obs, const IngestResult& r) {
-    if (r.rejection) {
-      if (out.on_rejection) out.on_rejection(*r.rejection);
-      return;
+  auto write = [&](const std::vector<OutputLine>& lines) {
+    for (const OutputLine& l : lines) {
+      if (out.alerts_json) *out.alerts_json << l.json << '\n';
+      if (out.alerts_text) *out.alerts_text << l.text << '\n';
+      written += l.alert ? 1 : 0;
     }
-    if (out.on_record) out.on_record(obs, r);
-    if (r.recovery) write(*r.recovery);
-    for (const Alert& a : r.released) write(a);
-    if (r.alert) write(*r.alert);
-    for (const Alert& a : r.detector_alerts) write(a);
   };
-  // Silence and late-record handling live in Engine::offer; this writes what comes out, in order.
+  // Late records and silence live in Engine::offer; this writes what comes out, in order.
   auto emit = [&](const OfferResult& o) {
     if (o.refused && out.on_rejection) out.on_rejection(*o.refused);
     for (const Released& rel : o.released) {
-      for (const Alert& a : rel.silence) write(a);
-      judged(rel.record, rel.result);
+      if (rel.result.rejection) {
+        if (out.on_rejection) out.on_rejection(*rel.result.rejection);
+      } else if (out.on_record) {
+        out.on_record(rel.record, rel.result);
+      }
+      write(output_lines(rel));
     }
-    for (const Alert& a : o.silence) write(a);
+    write(output_lines(o.silence));
   };
   FeedItem item;
   while (feeds.next(item)) {
@@ -46,7 +41,7 @@ std::uint64_t replay_feeds(FeedSet& feeds, Engine& engine, const ReplayOutputs& 
   // Records still held for late arrivals are due once the feeds end.
   emit(engine.drain());
   // The last time step of the control across series is complete once the feeds end.
-  for (const Alert& a : engine.flush()) write(a);
+  write(output_lines(engine.flush()));
   return written;
 }
 

@@ -59,7 +59,7 @@ TEST_CASE("intake writes silence and recovery lines, and a tick moves the clock 
   intake.tick(at("x", 33, 0).time);  // releases day 31 (tolerance 1 day)
   const std::string text = read_all(json);
   CHECK(text ==
-        R"({"time":"2025-07-13T05:00:00Z","series":"meter-1","count":0,"expected":0.0000,"lower":0,"upper":0,"p_value":1,"direction":"low","exposure":0,"alpha":0,"detector":"silence","statistic":86400,"last_seen":"2025-07-10T05:00:00Z"})"
+        R"({"time":"2025-07-13T05:00:00Z","series":"meter-1","count":0,"expected":0.0000,"lower":0,"upper":0,"p_value":1,"direction":"low","exposure":0,"alpha":0,"detector":"silence","statistic":86400,"episode":"meter-1/low/1","episode_state":"new","last_seen":"2025-07-10T05:00:00Z"})"
         "\n"
         R"({"time":"2025-08-01T05:00:00Z","series":"meter-1","count":6,"expected":0.0000,"lower":0,"upper":0,"p_value":1,"direction":"low","exposure":1,"alpha":0,"detector":"silence_end","statistic":1.9008e+06,"last_seen":"2025-07-10T05:00:00Z"})"
         "\n");
