@@ -13,6 +13,7 @@
 //
 //   build/detection_eval [--series N] [--seed S] [--arl-series M]
 //                        [--family quasipoisson|negbin] [--scenario I]
+//                        [--configs plain,resistant,...]
 //
 // Prints one table row per scenario and detector configuration, with 95%
 // confidence intervals; then, per scenario, the paired differences of each
@@ -247,6 +248,7 @@ std::string show_arl(const Tally& t) {
 
 int main(int argc, char** argv) {
   int n = 100, arl_series = 0, only = -1;
+  std::string wanted;  // comma-separated configuration names; empty: all
   std::uint64_t seed = 2013;
   glm::Family family = glm::Family::quasipoisson;
   for (int i = 1; i + 1 < argc; i += 2) {
@@ -255,12 +257,13 @@ int main(int argc, char** argv) {
     else if (k == "--seed") seed = std::strtoull(v.c_str(), nullptr, 10);
     else if (k == "--arl-series") arl_series = std::atoi(v.c_str());
     else if (k == "--scenario") only = std::atoi(v.c_str());
+    else if (k == "--configs") wanted = "," + v + ",";
     else if (k == "--family" && (v == "quasipoisson" || v == "negbin"))
       family = v == "negbin" ? glm::Family::negbin : glm::Family::quasipoisson;
     else {
       std::fprintf(stderr,
                    "usage: detection_eval [--series N] [--seed S] [--arl-series M] [--family quasipoisson|negbin] "
-                   "[--scenario I]\n");
+                   "[--scenario I] [--configs a,b]\n");
       return 1;
     }
   }
@@ -296,6 +299,7 @@ int main(int argc, char** argv) {
       const bool relevant = (sc.kind == Scenario::silent) ? (std::string(cfg.name) == "plain" || cfg.low_run || cfg.shift)
                                                           : !cfg.low_run;
       if (!relevant) continue;
+      if (!wanted.empty() && wanted.find("," + std::string(cfg.name) + ",") == std::string::npos) continue;
       Tally t;
       run(sc, cfg, family, data, t);
       std::printf("%-3d %-48s %-20s %-28s %-21s %-21s %6.1f\n", si, sc.name, cfg.name,
