@@ -108,6 +108,9 @@ struct Tally {
   std::vector<double> detected;                           // per outbreak series: 1 if any alert during the outbreak
   std::vector<double> outbreak_weeks, outbreak_alert_weeks;
   std::vector<int> delays;
+  // Null series, judged records: squared error of the fitted log mean against
+  // the simulated one, and the model's own variance of it (eta_variance).
+  double log_error_squares = 0, eta_variances = 0, log_errors = 0;
 };
 
 double sum(const std::vector<double>& v) {
@@ -191,6 +194,11 @@ void run(const Scenario& sc, const Config& cfg, glm::Family family, const std::v
       bool alert = false;
       for (const Alert& a : alerts) alert = alert || counts_for(a, sc);
       if (s.onset < 0) {
+        const double v = r.prediction->predictor.eta_variance;
+        const double e = std::log(r.prediction->bounds.expected) - 0.5 * v - std::log(baseline_mean(sc, t));
+        tally.log_error_squares += e * e;
+        tally.log_errors += e;
+        tally.eta_variances += v;
         ++records;
         for (const Alert& a : r.detector_alerts) alarms += a.detector == std::string("shift") ? 1 : 0;
         if (t >= kEvalFrom) {
@@ -328,9 +336,13 @@ int main(int argc, char** argv) {
       for (int i = 0; i < arl_series; ++i) nulls.push_back(simulate(sc, false, arl_rng));
       Tally t;
       run(sc, configs[3], family, nulls, t);
-      char line[256];
-      std::snprintf(line, sizeof line, "%-3d %-48s %d null series, %.0f judged records: ARL %s (target 500)", si,
-                    sc.name, arl_series, sum(t.cusum_records), show_arl(t).c_str());
+      char line[512];
+      const double judged = std::max(1.0, sum(t.cusum_records));
+      std::snprintf(line, sizeof line,
+                    "%-3d %-48s %d null series, %.0f judged records: ARL %s (target 500); log-mean error: mean %+.4f, "
+                    "mean square %.4f, model's eta_variance %.4f",
+                    si, sc.name, arl_series, judged, show_arl(t).c_str(), t.log_errors / judged,
+                    t.log_error_squares / judged, t.eta_variances / judged);
       arl_lines.push_back(line);
       std::fprintf(stderr, "%s\n", line);
     }
