@@ -60,6 +60,9 @@ struct AlertSpec {
   int draws = 10000;                    // simulate: draws per record
   int quadrature_nodes = 48;            // quadrature: Gauss-Hermite nodes
   std::uint64_t seed = 1;               // simulate: base seed of the reproducible draws
+  // Judged records in a row without an alert in an open episode's direction
+  // that close that episode (alert/episode_tracker.h); 1-10000.
+  std::uint32_t episode_close_records = 3;
 };
 
 // Everything that governs one series.
