@@ -11,10 +11,20 @@
 // and low-run detectors: a sustained doubling of the rate for 12 weeks, and
 // a trap that goes silent (zeros) for the rest of the year.
 //
-//   build/detection_eval [--series N] [--seed S]
+//   build/detection_eval [--series N] [--seed S] [--arl-series M]
+//                        [--family quasipoisson|negbin] [--scenario I]
+//                        [--configs plain,resistant,...]
 //
-// Prints one table row per scenario and detector configuration; see
-// docs/detection.md for the recorded figures and the command.
+// Prints one table row per scenario and detector configuration, with 95%
+// confidence intervals; then, per scenario, the paired differences of each
+// configuration against `plain` on the same series; then (with --arl-series
+// M > 0) the CUSUM's realised in-control run length on M further null series
+// per scenario. See docs/detection.md for the recorded figures and commands.
+//
+// Intervals: rates over weeks (FPR, sensitivity, the CUSUM's alarm rate) use
+// the ratio estimator with the series as the unit (alerts of one series are
+// not independent: they share its fitted model), POD the binomial normal
+// approximation, differences the paired mean over series.
 #include <algorithm>
 #include <cmath>
 #include <cstdio>
@@ -91,22 +101,67 @@ Series simulate(const Scenario& s, bool outbreak, bounds::Rng& rng) {
   return out;
 }
 
+// Per-series outcomes of one configuration, for intervals and paired differences.
 struct Tally {
-  long null_weeks = 0, null_alert_weeks = 0;
-  long outbreaks = 0, detected = 0, outbreak_weeks = 0, outbreak_alert_weeks = 0;
+  std::vector<double> null_weeks, null_alert_weeks;      // per null series, scored year
+  std::vector<double> cusum_records, cusum_alarms;       // per null series, whole judged span
+  std::vector<double> detected;                           // per outbreak series: 1 if any alert during the outbreak
+  std::vector<double> outbreak_weeks, outbreak_alert_weeks;
   std::vector<int> delays;
-  long cusum_records = 0, cusum_alarms = 0;  // in-control CUSUM records and alarms, high side, whole judged span
+  // Null series, judged records: squared error of the fitted log mean against
+  // the simulated one, and the model's own variance of it (eta_variance).
+  double log_error_squares = 0, eta_variances = 0, log_errors = 0;
 };
+
+double sum(const std::vector<double>& v) {
+  double s = 0;
+  for (double x : v) s += x;
+  return s;
+}
+
+// Ratio sum(a) / sum(b) with its 95% interval, the series as the unit.
+struct Interval {
+  double value, lo, hi;
+};
+
+Interval ratio(const std::vector<double>& a, const std::vector<double>& b) {
+  const double sa = sum(a), sb = std::max(sum(b), 1.0);
+  const double r = sa / sb;
+  const double n = static_cast<double>(a.size());
+  if (sa == 0) return {0, 0, 3 / sb};  // no events: the "rule of three" upper bound
+  double ss = 0;
+  for (std::size_t i = 0; i < a.size(); ++i) ss += (a[i] - r * b[i]) * (a[i] - r * b[i]);
+  const double se = std::sqrt(n / std::max(n - 1, 1.0) * ss) / sb;
+  return {r, std::max(0.0, r - 1.96 * se), r + 1.96 * se};
+}
+
+// Mean of paired differences x_i - y_i with its 95% interval.
+Interval paired(const std::vector<double>& x, const std::vector<double>& y) {
+  const double n = static_cast<double>(x.size());
+  double m = 0, ss = 0;
+  for (std::size_t i = 0; i < x.size(); ++i) m += x[i] - y[i];
+  m /= std::max(n, 1.0);
+  for (std::size_t i = 0; i < x.size(); ++i) ss += (x[i] - y[i] - m) * (x[i] - y[i] - m);
+  const double se = std::sqrt(ss / std::max(n - 1, 1.0) / std::max(n, 1.0));
+  return {m, m - 1.96 * se, m + 1.96 * se};
+}
+
+// Per-series rates (alerts / weeks; 0 for a series with no weeks), for paired FPR differences.
+std::vector<double> per_series(const std::vector<double>& a, const std::vector<double>& b) {
+  std::vector<double> out(a.size());
+  for (std::size_t i = 0; i < a.size(); ++i) out[i] = b[i] > 0 ? a[i] / b[i] : 0;
+  return out;
+}
 
 // True for an alert of the side the scenario's event moves counts to.
 bool counts_for(const Alert& a, const Scenario& s) {
   return s.kind == Scenario::silent ? a.side == AlertSide::low : a.side == AlertSide::high;
 }
 
-void run(const Scenario& sc, const Config& cfg, const std::vector<Series>& data, Tally& tally) {
+void run(const Scenario& sc, const Config& cfg, glm::Family family, const std::vector<Series>& data, Tally& tally) {
   SettingsTable settings;
   ModelSpec& m = settings.defaults.model;
-  m.family = glm::Family::quasipoisson;
+  m.family = family;
   m.trend = true;
   m.seasons = {Season{Seconds{static_cast<std::int64_t>(kDaysPerYear * kSecondsPerDay)}, 2}};
   m.window = Window{std::nullopt, 156};  // 3 years of weeks
@@ -126,6 +181,7 @@ void run(const Scenario& sc, const Config& cfg, const std::vector<Series>& data,
     const Series& s = data[i];
     const std::string id = "s" + std::to_string(i);
     int first_alert = -1;
+    double weeks = 0, alert_weeks = 0, records = 0, alarms = 0;
     for (int t = 0; t < kWeeks; ++t) {
       Observation o;
       o.series = id;
@@ -138,24 +194,33 @@ void run(const Scenario& sc, const Config& cfg, const std::vector<Series>& data,
       bool alert = false;
       for (const Alert& a : alerts) alert = alert || counts_for(a, sc);
       if (s.onset < 0) {
-        ++tally.cusum_records;
-        for (const Alert& a : r.detector_alerts) tally.cusum_alarms += a.detector == std::string("shift") ? 1 : 0;
+        const double v = r.prediction->predictor.eta_variance;
+        const double e = std::log(r.prediction->bounds.expected) - 0.5 * v - std::log(baseline_mean(sc, t));
+        tally.log_error_squares += e * e;
+        tally.log_errors += e;
+        tally.eta_variances += v;
+        ++records;
+        for (const Alert& a : r.detector_alerts) alarms += a.detector == std::string("shift") ? 1 : 0;
         if (t >= kEvalFrom) {
-          ++tally.null_weeks;
-          tally.null_alert_weeks += alert ? 1 : 0;
+          ++weeks;
+          alert_weeks += alert ? 1 : 0;
         }
       } else if (t >= s.onset && t < s.onset + s.length) {
-        ++tally.outbreak_weeks;
-        tally.outbreak_alert_weeks += alert ? 1 : 0;
+        ++weeks;
+        alert_weeks += alert ? 1 : 0;
         if (alert && first_alert < 0) first_alert = t;
       }
     }
-    if (s.onset >= 0) {
-      ++tally.outbreaks;
-      if (first_alert >= 0) {
-        ++tally.detected;
-        tally.delays.push_back(first_alert - s.onset);
-      }
+    if (s.onset < 0) {
+      tally.null_weeks.push_back(weeks);
+      tally.null_alert_weeks.push_back(alert_weeks);
+      tally.cusum_records.push_back(records);
+      tally.cusum_alarms.push_back(alarms);
+    } else {
+      tally.outbreak_weeks.push_back(weeks);
+      tally.outbreak_alert_weeks.push_back(alert_weeks);
+      tally.detected.push_back(first_alert >= 0 ? 1 : 0);
+      if (first_alert >= 0) tally.delays.push_back(first_alert - s.onset);
     }
   }
 }
@@ -167,17 +232,46 @@ double median(std::vector<int> v) {
   return n % 2 ? v[n / 2] : 0.5 * (v[n / 2 - 1] + v[n / 2]);
 }
 
+// "0.00123 [0.00080,0.00170]"
+std::string show(const Interval& i, const char* fmt) {
+  char a[32], b[32], c[32], out[112];
+  std::snprintf(a, sizeof a, fmt, i.value);
+  std::snprintf(b, sizeof b, fmt, i.lo);
+  std::snprintf(c, sizeof c, fmt, i.hi);
+  std::snprintf(out, sizeof out, "%s [%s,%s]", a, b, c);
+  return out;
+}
+
+// The realised in-control ARL (records per alarm) with its interval, from the alarm rate's.
+std::string show_arl(const Tally& t) {
+  const Interval r = ratio(t.cusum_alarms, t.cusum_records);
+  if (r.value == 0) return ">" + std::to_string(static_cast<long>(1 / r.hi));
+  char out[64];
+  std::snprintf(out, sizeof out, "%.0f [%.0f,%.0f] (%.0f alarms)", 1 / r.value, 1 / r.hi,
+                r.lo > 0 ? 1 / r.lo : INFINITY, sum(t.cusum_alarms));
+  return out;
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
-  int n = 100;
+  int n = 100, arl_series = 0, only = -1;
+  std::string wanted;  // comma-separated configuration names; empty: all
   std::uint64_t seed = 2013;
+  glm::Family family = glm::Family::quasipoisson;
   for (int i = 1; i + 1 < argc; i += 2) {
-    const std::string k = argv[i];
-    if (k == "--series") n = std::atoi(argv[i + 1]);
-    else if (k == "--seed") seed = std::strtoull(argv[i + 1], nullptr, 10);
+    const std::string k = argv[i], v = argv[i + 1];
+    if (k == "--series") n = std::atoi(v.c_str());
+    else if (k == "--seed") seed = std::strtoull(v.c_str(), nullptr, 10);
+    else if (k == "--arl-series") arl_series = std::atoi(v.c_str());
+    else if (k == "--scenario") only = std::atoi(v.c_str());
+    else if (k == "--configs") wanted = "," + v + ",";
+    else if (k == "--family" && (v == "quasipoisson" || v == "negbin"))
+      family = v == "negbin" ? glm::Family::negbin : glm::Family::quasipoisson;
     else {
-      std::fprintf(stderr, "usage: detection_eval [--series N] [--seed S]\n");
+      std::fprintf(stderr,
+                   "usage: detection_eval [--series N] [--seed S] [--arl-series M] [--family quasipoisson|negbin] "
+                   "[--scenario I] [--configs a,b]\n");
       return 1;
     }
   }
@@ -196,26 +290,68 @@ int main(int argc, char** argv) {
       {"resistant+shift", true, 1.0, true, false},
       {"resistant+low_run", true, 1.0, false, true},
   };
-  std::printf("%-48s %-20s %9s %7s %7s %7s %9s\n", "scenario", "config", "FPR/week", "POD", "sens", "delay", "ARL(shift)");
-  int si = 0;
-  for (const Scenario& sc : scenarios) {
-    bounds::Rng rng(seed * 1000 + static_cast<std::uint64_t>(si++));
+  std::printf("family %s, %d null + %d outbreak series per scenario, seed %llu; 95%% intervals in brackets\n",
+              family == glm::Family::negbin ? "negbin" : "quasipoisson", n, n, static_cast<unsigned long long>(seed));
+  std::printf("%-3s %-48s %-20s %-28s %-21s %-21s %6s\n", "#", "scenario", "config", "FPR/week", "POD", "sens", "delay");
+  std::vector<std::string> paired_lines, arl_lines;
+  const int count = static_cast<int>(sizeof scenarios / sizeof scenarios[0]);
+  for (int si = 0; si < count; ++si) {
+    if (only >= 0 && si != only) continue;
+    const Scenario& sc = scenarios[si];
+    bounds::Rng rng(seed * 1000 + static_cast<std::uint64_t>(si));
     std::vector<Series> data;
     for (int i = 0; i < n; ++i) data.push_back(simulate(sc, false, rng));
     for (int i = 0; i < n; ++i) data.push_back(simulate(sc, true, rng));
+    Tally plain;
     for (const Config& cfg : configs) {
       const bool relevant = (sc.kind == Scenario::silent) ? (std::string(cfg.name) == "plain" || cfg.low_run || cfg.shift)
                                                           : !cfg.low_run;
       if (!relevant) continue;
+      if (!wanted.empty() && wanted.find("," + std::string(cfg.name) + ",") == std::string::npos) continue;
       Tally t;
-      run(sc, cfg, data, t);
-      char arl[32] = "-";
-      if (cfg.shift) std::snprintf(arl, sizeof arl, "%.0f", t.cusum_alarms ? double(t.cusum_records) / t.cusum_alarms : INFINITY);
-      std::printf("%-48s %-20s %9.5f %7.3f %7.3f %7.1f %9s\n", sc.name, cfg.name,
-                  double(t.null_alert_weeks) / std::max(1L, t.null_weeks), double(t.detected) / std::max(1L, t.outbreaks),
-                  double(t.outbreak_alert_weeks) / std::max(1L, t.outbreak_weeks), median(t.delays), arl);
+      run(sc, cfg, family, data, t);
+      std::printf("%-3d %-48s %-20s %-28s %-21s %-21s %6.1f\n", si, sc.name, cfg.name,
+                  show(ratio(t.null_alert_weeks, t.null_weeks), "%.5f").c_str(),
+                  show(ratio(t.detected, std::vector<double>(t.detected.size(), 1.0)), "%.3f").c_str(),
+                  show(ratio(t.outbreak_alert_weeks, t.outbreak_weeks), "%.3f").c_str(), median(t.delays));
       std::fflush(stdout);
+      if (std::string(cfg.name) == "plain") {
+        plain = t;
+        continue;
+      }
+      char line[256];
+      std::snprintf(line, sizeof line, "%-3d %-48s %-20s dPOD %-27s dFPR %-30s ARL(shift) %s", si, sc.name, cfg.name,
+                    show(paired(t.detected, plain.detected), "%+.3f").c_str(),
+                    show(paired(per_series(t.null_alert_weeks, t.null_weeks),
+                                per_series(plain.null_alert_weeks, plain.null_weeks)),
+                         "%+.5f")
+                        .c_str(),
+                    cfg.shift ? show_arl(t).c_str() : "-");
+      paired_lines.push_back(line);
     }
+    if (arl_series > 0) {
+      // Only null series: the realised in-control run length of the CUSUM.
+      bounds::Rng arl_rng(seed * 1000 + 500 + static_cast<std::uint64_t>(si));
+      std::vector<Series> nulls;
+      for (int i = 0; i < arl_series; ++i) nulls.push_back(simulate(sc, false, arl_rng));
+      Tally t;
+      run(sc, configs[3], family, nulls, t);
+      char line[512];
+      const double judged = std::max(1.0, sum(t.cusum_records));
+      std::snprintf(line, sizeof line,
+                    "%-3d %-48s %d null series, %.0f judged records: ARL %s (target 500); log-mean error: mean %+.4f, "
+                    "mean square %.4f, model's eta_variance %.4f",
+                    si, sc.name, arl_series, judged, show_arl(t).c_str(), t.log_errors / judged,
+                    t.log_error_squares / judged, t.eta_variances / judged);
+      arl_lines.push_back(line);
+      std::fprintf(stderr, "%s\n", line);
+    }
+  }
+  std::printf("\npaired against plain on the same series (dPOD: detected; dFPR: per-series alert-week rate)\n");
+  for (const std::string& l : paired_lines) std::printf("%s\n", l.c_str());
+  if (!arl_lines.empty()) {
+    std::printf("\nshift CUSUM (factor 2, high side; low side for the silent trap), resistant baseline\n");
+    for (const std::string& l : arl_lines) std::printf("%s\n", l.c_str());
   }
   return 0;
 }

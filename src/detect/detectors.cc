@@ -53,23 +53,20 @@ LowThreshold low_threshold(const Observation& obs, const Prediction& p, const Se
 
 }  // namespace
 
-CountLaw law_of(const Prediction& prediction) {
-  CountLaw law;
-  const double mu = std::max(prediction.bounds.expected, 1e-6);
-  law.mean = mu;
+InControl in_control_of(const Prediction& prediction) {
+  InControl in;
+  in.mean = std::max(prediction.bounds.expected, 1e-6);
   const bounds::CountNoise& n = prediction.noise;
-  double variance = mu;  // the count noise at mu
-  if (n.family == glm::Family::negbin && std::isfinite(n.theta) && n.theta > 0) variance = mu + mu * mu / n.theta;
-  if (n.family == glm::Family::quasipoisson && std::isfinite(n.dispersion) && n.dispersion > 1)
-    variance = n.dispersion * mu;
-  // Plus the spread of the mean from the fitted coefficients (log link:
-  // Var(exp(eta*)) = mu^2 (exp(v) - 1) for eta* ~ N(., v) with mean mu), so
-  // the in-control law is the predictive one, not the plug-in one.
+  if (n.family == glm::Family::negbin && std::isfinite(n.theta) && n.theta > 0) in.theta = n.theta;
+  if (n.family == glm::Family::quasipoisson && std::isfinite(n.dispersion) && n.dispersion > 1) in.phi = n.dispersion;
+  // The error of the fitted log mean (log link only: other links have no
+  // multiplicative error to carry over).
   const double v = prediction.predictor.eta_variance;
-  if (n.link == glm::Link::log && std::isfinite(v) && v > 0) variance += mu * mu * std::expm1(std::min(v, 5.0));
-  if (variance > mu * (1 + 1e-9)) law.size = mu * mu / (variance - mu);
-  return law;
+  if (n.link == glm::Link::log && std::isfinite(v) && v > 0) in.eta_variance = v;
+  return in;
 }
+
+CountLaw law_of(const Prediction& prediction) { return scored_law(in_control_of(prediction)); }
 
 std::vector<Alert> run_detectors(DetectorState& state, const Observation& obs, const Prediction& prediction,
                                  const SeriesSettings& settings, LimitTable& limits) {
@@ -80,11 +77,12 @@ std::vector<Alert> run_detectors(DetectorState& state, const Observation& obs, c
   if (!std::isfinite(prediction.bounds.expected)) return out;  // no usable prediction: nothing to add
 
   if (d.shift) {
-    const CountLaw law = law_of(prediction);
+    const InControl in = in_control_of(prediction);
+    const CountLaw law = scored_law(in);
     const double per_record = 1.0 / d.shift_arl_records;
     if (watch_high) {
       state.shift_high = std::max(0.0, state.shift_high + shift_increment(obs.count, law, d.shift_factor));
-      const double h = limits.limit(law, d.shift_factor, d.shift_arl_records);
+      const double h = limits.limit(in, d.shift_factor, d.shift_arl_records);
       if (state.shift_high > h) {
         Alert a = base_alert(obs, prediction, settings.alert);
         a.side = AlertSide::high;
@@ -99,7 +97,7 @@ std::vector<Alert> run_detectors(DetectorState& state, const Observation& obs, c
     if (watch_low) {
       const double down = 1.0 / d.shift_factor;
       state.shift_low = std::max(0.0, state.shift_low + shift_increment(obs.count, law, down));
-      const double h = limits.limit(law, down, d.shift_arl_records);
+      const double h = limits.limit(in, down, d.shift_arl_records);
       if (state.shift_low > h) {
         Alert a = base_alert(obs, prediction, settings.alert);
         a.side = AlertSide::low;

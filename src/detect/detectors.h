@@ -26,11 +26,17 @@ struct DetectorState {
   std::uint32_t run_records = 0;    // records in the current run of low records
 };
 
-// The in-control count law the CUSUM uses for a prediction: NB2 (or
-// Poisson) with the predictive mean and variance. The variance is the fitted
-// noise's (Poisson mu; NB2 mu + mu^2 / theta; quasi-Poisson phi mu) plus,
-// under the log link, the spread of the mean from the coefficients'
-// uncertainty, mu^2 (exp(eta_variance) - 1).
+// What the prediction says about the in-control counts: the predictive
+// mean, the fitted noise (NB2 size theta; quasi-Poisson phi), and, under the
+// log link, the variance of the fitted log mean (eta_variance), which the
+// CUSUM's limit allows for (see shift_cusum.h, InControl).
+InControl in_control_of(const Prediction& prediction);
+
+// The in-control count law the CUSUM scores counts against: NB2 (or
+// Poisson) with the predictive mean and variance, scored_law(in_control_of).
+// The variance is the fitted noise's (Poisson mu; NB2 mu + mu^2 / theta;
+// quasi-Poisson phi mu) plus, under the log link, the spread of the mean from
+// the coefficients' uncertainty, mu^2 (exp(eta_variance) - 1).
 CountLaw law_of(const Prediction& prediction);
 
 // Updates `state` with the judged record and returns the alerts it raises

@@ -10,7 +10,8 @@
 namespace tallyd::detect {
 namespace {
 
-constexpr double kGridStep = 0.05;  // log-scale cell of the limit cache (about 5%)
+constexpr double kGridStep = 0.1;  // log-scale cell of the limit cache's mean and dispersion index (about 10%)
+constexpr int kTableStates = 100;  // chain cells for cached limits (the cost is cubic in it)
 
 // log P(Y = y) under the law.
 double log_pmf(std::int64_t y, const CountLaw& law) {
@@ -39,51 +40,119 @@ double shift_increment(std::int64_t y, const CountLaw& law, double factor) {
   return k * std::log(factor * (r + mu) / (r + factor * mu)) + r * std::log((r + mu) / (r + factor * mu));
 }
 
-double chain_arl(const CountLaw& law, double factor, double h, int states) {
-  const int n = std::max(states, 10);
-  // Cell j holds S near j * w; cell 0 also holds S <= w / 2 (the reflecting
-  // barrier at 0); the last cell ends exactly at h (Brook and Evans 1972).
-  const double w = h / (n - 0.5);
-  const std::int64_t ymax = count_ceiling(law);
-  std::vector<double> pmf(static_cast<std::size_t>(ymax + 1)), step(pmf.size());
-  for (std::int64_t y = 0; y <= ymax; ++y) {
-    pmf[static_cast<std::size_t>(y)] = std::exp(log_pmf(y, law));
-    step[static_cast<std::size_t>(y)] = shift_increment(y, law, factor);
-  }
-  Eigen::MatrixXd A = Eigen::MatrixXd::Identity(n, n);  // I - R
-  for (int j = 0; j < n; ++j) {
-    const double from = j * w;
-    for (std::size_t y = 0; y < pmf.size(); ++y) {
-      const double s = from + step[y];
-      if (s > h) continue;  // absorbed: an alarm
-      const int cell = s <= 0.5 * w ? 0 : std::min(n - 1, static_cast<int>(std::ceil(s / w - 0.5)));
-      A(j, cell) -= pmf[y];
-    }
-  }
-  const Eigen::VectorXd ones = Eigen::VectorXd::Ones(n);
-  const Eigen::VectorXd arl = A.partialPivLu().solve(ones);
-  const double a = arl(0);
-  // A chain that never reaches h makes I - R singular: the solve then gives
-  // huge or non-finite values.
-  if (!std::isfinite(a) || a < 1 || a > 1e15) return std::numeric_limits<double>::infinity();
-  return a;
+namespace {
+
+// Probabilists' Gauss-Hermite rule with 5 nodes for E[f(Z)], Z ~ N(0, 1):
+// nodes 0, +-sqrt(5 - sqrt(10)), +-sqrt(5 + sqrt(10)); weights 8/15,
+// (7 + 2 sqrt(10)) / 60, (7 - 2 sqrt(10)) / 60 (the n = 5 rule of Abramowitz
+// and Stegun 1964, 25.4.46 and Table 25.10, rescaled from exp(-x^2) to N(0, 1)).
+constexpr double kNodes[5] = {0.0, 1.3556261799742659, -1.3556261799742659, 2.8569700138728056,
+                              -2.8569700138728056};
+constexpr double kWeights[5] = {0.5333333333333333, 0.22207592200561265, 0.22207592200561265,
+                                0.011257411327720689, 0.011257411327720689};
+
+// The true count law at mean m for the noise of `in`.
+CountLaw noise_at(const InControl& in, double m) {
+  if (std::isfinite(in.theta) && in.theta > 0) return {m, in.theta};
+  if (std::isfinite(in.phi) && in.phi > 1) return {m, m / (in.phi - 1)};
+  return {m, 0};
 }
 
-double decision_limit(const CountLaw& law, double factor, double arl0, int states) {
+// The Brook-Evans chain of one CUSUM: increments scored against one law,
+// counts drawn from a weighted set of true laws. The pmfs and increments do
+// not depend on h, so they are computed once and reused through a bisection.
+class Chain {
+ public:
+  Chain(const CountLaw& scored, double factor, const std::vector<std::pair<double, CountLaw>>& truths) {
+    std::int64_t ymax = 0;
+    for (const auto& [weight, law] : truths) {
+      Component c;
+      c.weight = weight;
+      const std::int64_t top = count_ceiling(law);
+      ymax = std::max(ymax, top);
+      c.pmf.resize(static_cast<std::size_t>(top + 1));
+      for (std::int64_t y = 0; y <= top; ++y) c.pmf[static_cast<std::size_t>(y)] = std::exp(log_pmf(y, law));
+      components_.push_back(std::move(c));
+    }
+    step_.resize(static_cast<std::size_t>(ymax + 1));
+    for (std::int64_t y = 0; y <= ymax; ++y) step_[static_cast<std::size_t>(y)] = shift_increment(y, scored, factor);
+  }
+
+  // 1 / (sum_i weight_i / ARL_i); +inf when no component reaches h.
+  double arl(double h, int states) const {
+    double rate = 0;
+    for (const Component& c : components_) {
+      const double a = component_arl(c.pmf, h, states);
+      if (std::isfinite(a)) rate += c.weight / a;
+    }
+    return rate > 0 ? 1 / rate : std::numeric_limits<double>::infinity();
+  }
+
+ private:
+  struct Component {
+    double weight = 1;
+    std::vector<double> pmf;
+  };
+
+  double component_arl(const std::vector<double>& pmf, double h, int states) const {
+    const int n = std::max(states, 10);
+    // Cell j holds S near j * w; cell 0 also holds S <= w / 2 (the reflecting
+    // barrier at 0); the last cell ends exactly at h (Brook and Evans 1972).
+    const double w = h / (n - 0.5);
+    Eigen::MatrixXd A = Eigen::MatrixXd::Identity(n, n);  // I - R
+    for (int j = 0; j < n; ++j) {
+      const double from = j * w;
+      for (std::size_t y = 0; y < pmf.size(); ++y) {
+        const double s = from + step_[y];
+        if (s > h) continue;  // absorbed: an alarm
+        const int cell = s <= 0.5 * w ? 0 : std::min(n - 1, static_cast<int>(std::ceil(s / w - 0.5)));
+        A(j, cell) -= pmf[y];
+      }
+    }
+    const Eigen::VectorXd ones = Eigen::VectorXd::Ones(n);
+    const Eigen::VectorXd arl = A.partialPivLu().solve(ones);
+    const double a = arl(0);
+    // A chain that never reaches h makes I - R singular: the solve then gives
+    // huge or non-finite values.
+    if (!std::isfinite(a) || a < 1 || a > 1e15) return std::numeric_limits<double>::infinity();
+    return a;
+  }
+
+  std::vector<Component> components_;
+  std::vector<double> step_;
+};
+
+Chain known_chain(const CountLaw& law, double factor) { return Chain(law, factor, {{1.0, law}}); }
+
+Chain fitted_chain(const InControl& in, double factor) {
+  const CountLaw scored = scored_law(in);
+  const double v = std::isfinite(in.eta_variance) ? std::max(in.eta_variance, 0.0) : 0.0;
+  std::vector<std::pair<double, CountLaw>> truths;
+  if (v <= 0) {
+    truths.push_back({1.0, noise_at(in, in.mean)});
+  } else {
+    // exp(delta - v / 2) keeps the mixture's mean at the predictive mean.
+    for (int i = 0; i < 5; ++i)
+      truths.push_back({kWeights[i], noise_at(in, in.mean * std::exp(std::sqrt(v) * kNodes[i] - 0.5 * v))});
+  }
+  return Chain(scored, factor, truths);
+}
+
+double limit_from(const Chain& chain, double arl0, int states) {
   double lo = 0, hi = 1;
-  while (chain_arl(law, factor, hi, states) < arl0 && hi < 1e3) {
+  while (chain.arl(hi, states) < arl0 && hi < 1e3) {
     lo = hi;
     hi *= 2;
   }
-  // Bisection to 1e-4 of h. The ARL of a count CUSUM is a step function of
+  // Bisection to 1e-3 of h. The ARL of a count CUSUM is a step function of
   // h (the statistic lives near a lattice), so a target between two steps
   // cannot be met exactly: of the two limits either side of the step, keep
   // the one whose ARL is nearer the target on the log scale.
-  double arl_lo = chain_arl(law, factor, lo, states);
-  double arl_hi = chain_arl(law, factor, hi, states);
-  for (int i = 0; i < 60 && hi - lo > 1e-4 * hi; ++i) {
+  double arl_lo = chain.arl(lo, states);
+  double arl_hi = chain.arl(hi, states);
+  for (int i = 0; i < 60 && hi - lo > 1e-3 * hi; ++i) {
     const double mid = 0.5 * (lo + hi);
-    const double arl_mid = chain_arl(law, factor, mid, states);
+    const double arl_mid = chain.arl(mid, states);
     if (arl_mid < arl0) {
       lo = mid;
       arl_lo = arl_mid;
@@ -96,28 +165,79 @@ double decision_limit(const CountLaw& law, double factor, double arl0, int state
   return hi;
 }
 
-CountLaw LimitTable::rounded(const CountLaw& law) {
-  const double mean = std::clamp(law.mean, 1e-3, 1e5);
+constexpr double kVarianceStep = 0.5;   // log-scale cell of eta_variance in the limit cache
+constexpr double kVarianceFloor = 1e-5; // below this the estimation error is ignored
+
+// The noise's dispersion index Var / mean at mean m (1 for Poisson).
+double noise_index(const InControl& in, double m) {
+  if (std::isfinite(in.theta) && in.theta > 0) return 1 + m / in.theta;
+  if (std::isfinite(in.phi) && in.phi > 1) return in.phi;
+  return 1;
+}
+
+}  // namespace
+
+CountLaw scored_law(const InControl& in) {
+  const double mu = std::max(in.mean, 1e-6);
+  double variance = mu * noise_index(in, mu);
+  const double v = in.eta_variance;
+  if (std::isfinite(v) && v > 0) variance += mu * mu * std::expm1(std::min(v, 5.0));
+  CountLaw law{mu, 0};
+  if (variance > mu * (1 + 1e-9)) law.size = mu * mu / (variance - mu);
+  return law;
+}
+
+double chain_arl(const CountLaw& law, double factor, double h, int states) {
+  return known_chain(law, factor).arl(h, states);
+}
+
+double chain_arl(const InControl& in, double factor, double h, int states) {
+  return fitted_chain(in, factor).arl(h, states);
+}
+
+double decision_limit(const CountLaw& law, double factor, double arl0, int states) {
+  return limit_from(known_chain(law, factor), arl0, states);
+}
+
+double decision_limit(const InControl& in, double factor, double arl0, int states) {
+  return limit_from(fitted_chain(in, factor), arl0, states);
+}
+
+InControl LimitTable::rounded(const InControl& in) {
+  const double mean = std::clamp(in.mean, 1e-3, 1e5);
   const double mean_r = std::exp(kGridStep * static_cast<double>(std::lround(std::log(mean) / kGridStep)));
-  CountLaw out{mean_r, 0};
-  if (!law.poisson()) {
-    const double index = 1 + law.mean / law.size;  // Var / mean
-    const long cell = std::lround(std::log(index) / kGridStep);
-    if (cell > 0) out.size = mean_r / (std::exp(kGridStep * static_cast<double>(cell)) - 1);
+  InControl out;
+  out.mean = mean_r;
+  const long index_cell = std::lround(std::log(noise_index(in, mean)) / kGridStep);
+  if (index_cell > 0) {
+    const double index_r = std::exp(kGridStep * static_cast<double>(index_cell));
+    if (std::isfinite(in.theta) && in.theta > 0) out.theta = mean_r / (index_r - 1);
+    else out.phi = index_r;
   }
+  if (std::isfinite(in.eta_variance) && in.eta_variance >= kVarianceFloor)
+    out.eta_variance = std::exp(kVarianceStep * static_cast<double>(std::lround(std::log(in.eta_variance) / kVarianceStep)));
   return out;
 }
 
-double LimitTable::limit(const CountLaw& law, double factor, double arl0) {
-  const CountLaw r = rounded(law);
+double LimitTable::limit(const InControl& in, double factor, double arl0) {
+  const InControl r = rounded(in);
   const long mean_cell = std::lround(std::log(r.mean) / kGridStep);
-  const long index_cell = r.poisson() ? 0 : std::lround(std::log(1 + r.mean / r.size) / kGridStep);
-  const auto key = std::make_tuple(mean_cell, index_cell, factor, arl0);
+  const int kind = std::isfinite(r.theta) && r.theta > 0 ? 1 : (r.phi > 1 ? 2 : 0);
+  const long index_cell = std::lround(std::log(noise_index(r, r.mean)) / kGridStep);
+  const long variance_cell = r.eta_variance > 0 ? std::lround(std::log(r.eta_variance) / kVarianceStep) : -1000;
+  const auto key = std::make_tuple(mean_cell, kind, index_cell, variance_cell, factor, arl0);
   auto it = cache_.find(key);
   if (it != cache_.end()) return it->second;
-  const double h = decision_limit(r, factor, arl0);
+  const double h = decision_limit(r, factor, arl0, kTableStates);
   cache_.emplace(key, h);
   return h;
+}
+
+double LimitTable::limit(const CountLaw& law, double factor, double arl0) {
+  InControl in;
+  in.mean = law.mean;
+  if (!law.poisson()) in.theta = law.size;
+  return limit(in, factor, arl0);
 }
 
 }  // namespace tallyd::detect

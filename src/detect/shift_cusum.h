@@ -14,8 +14,9 @@
 // interval [0, h] is cut into `states` cells, the in-control transition
 // probabilities between cells come from the exact count distribution, and
 // the ARL from state 0 is the solution of (I - R) L = 1. h is then found by
-// bisection on log ARL. This assumes a constant in-control mean; see
-// docs/detection.md for how a varying mean is handled.
+// bisection on log ARL. The chain assumes a constant in-control mean; see
+// docs/detection.md for how a varying mean is handled. For a fitted model
+// the limit also allows for the error of the fitted mean (InControl below).
 // Pure functions and one value cache; never throw on data.
 #pragma once
 
@@ -37,30 +38,62 @@ struct CountLaw {
 // size held fixed. factor > 0.
 double shift_increment(std::int64_t y, const CountLaw& law, double factor);
 
+// What a fitted model says the in-control counts do, for calibrating a limit.
+// The counts follow the count noise around a true mean mean * exp(delta -
+// eta_variance / 2), with delta ~ N(0, eta_variance) the error of the fitted
+// log mean (log link). That error is shared by neighbouring records (their
+// fits share nearly all their data), so for the calibration delta is held
+// fixed over a run: the realised alarm rate is the average over delta of
+// 1 / ARL(delta), not the rate of a chain whose variance merely includes it.
+struct InControl {
+  double mean = 1;          // predictive mean E[Y] (the model's `expected`), > 0
+  double theta = 0;         // NB2 size of the count noise; not finite and positive: no NB2 noise
+  double phi = 1;           // quasi-Poisson dispersion (Var / mean of the noise); <= 1: none
+  double eta_variance = 0;  // variance of the fitted log mean's error, >= 0 (0: plug-in mean is exact)
+};
+
+// The law the CUSUM scores counts against: NB2 (or Poisson) with the
+// predictive mean and the predictive variance (noise variance plus
+// mean^2 (exp(eta_variance) - 1)).
+CountLaw scored_law(const InControl& in);
+
 // In-control ARL (in records) of the one-sided CUSUM with limit h > 0, by the
 // Brook-Evans chain with `states` cells (>= 10). Returns +inf when the chain
 // cannot reach the limit (e.g. the increment is never positive).
+// With a CountLaw the counts follow that same law (a known in-control law).
 double chain_arl(const CountLaw& law, double factor, double h, int states = 150);
+
+// With an InControl the increments are scored against scored_law(in) and
+// the counts follow the noise around the shifted mean; the result is the
+// reciprocal of the alarm rate averaged over delta (5-node Gauss-Hermite),
+// +inf when no node can reach the limit.
+double chain_arl(const InControl& in, double factor, double h, int states = 150);
 
 // The limit h whose chain ARL is nearest arl0 (> 1) on the log scale: the ARL
 // of counts is a step function of h, and of the two limits either side of the
-// step that crosses arl0 the nearer is kept (bisection to 1e-4 relative in h).
+// step that crosses arl0 the nearer is kept (bisection to 1e-3 relative in h).
 double decision_limit(const CountLaw& law, double factor, double arl0, int states = 150);
+double decision_limit(const InControl& in, double factor, double arl0, int states = 150);
 
-// Decision limits cached by value. The mean and the dispersion index
-// (1 + mean / size) are rounded to a grid of 5% steps on the log scale and the
-// limit is computed for the rounded law, so equal inputs always give equal
-// limits, whatever came before (no hidden dependence on history; the cache
-// is a speed-up only and needs no checkpoint). Not thread-safe.
+// Decision limits cached by value. The mean and the noise's dispersion index
+// at the mean (Var / mean) are rounded to a grid of 0.1 steps on the log
+// scale (about 10%), eta_variance to steps of 0.5 in log (below 1e-5 it
+// counts as 0), and the limit is computed for the rounded law with a
+// 100-cell chain (a limit costs some 100 chain solves), so equal inputs always give
+// equal limits, whatever came before (no hidden dependence on history; the
+// cache is a speed-up only and needs no checkpoint). Not thread-safe.
 class LimitTable {
  public:
+  double limit(const InControl& in, double factor, double arl0);
+  // A known law: the limit of the InControl with that noise and no estimation error.
   double limit(const CountLaw& law, double factor, double arl0);
-  // The rounded law a limit is computed for.
-  static CountLaw rounded(const CountLaw& law);
+  // The rounded situation a limit is computed for.
+  static InControl rounded(const InControl& in);
   std::size_t size() const { return cache_.size(); }
 
  private:
-  std::map<std::tuple<long, long, double, double>, double> cache_;
+  // mean cell, noise kind (0 Poisson, 1 NB2 size, 2 quasi-Poisson), index cell, eta_variance cell, factor, arl0
+  std::map<std::tuple<long, int, long, long, double, double>, double> cache_;
 };
 
 }  // namespace tallyd::detect
