@@ -168,7 +168,7 @@ class Reader {
   }
 
   void read_alert(const toml::table& t, std::string_view prefix, AlertSpec& a) {
-    check_keys(t, prefix, {"alpha", "direction", "method", "draws", "seed", "quadrature_nodes"});
+    check_keys(t, prefix, {"alpha", "direction", "method", "draws", "seed", "quadrature_nodes", "screen"});
     if (const toml::node* n = t.get("alpha")) {
       std::optional<double> v = n->value<double>();
       if (!v || !(*v > 0 && *v < 0.5)) fail(*n, join(prefix, "alpha"), "must be a number between 0 and 0.5");
@@ -194,6 +194,7 @@ class Reader {
       if (v->get() < 0) fail(*v, join(prefix, "seed"), "must be non-negative");
       else a.seed = static_cast<std::uint64_t>(v->get());
     }
+    if (auto* v = get<toml::value<bool>>(t, "screen", prefix, "true or false")) a.screen = v->get();
   }
 
   void read_detect(const toml::table& t, std::string_view prefix, DetectSpec& d) {

@@ -73,6 +73,12 @@ class Engine {
   // The state of the control across series (part of a checkpoint).
   const detect::FdrState& fdr_state() const { return fdr_state_; }
 
+  // Every judged record's prediction then carries its full bounds and
+  // p-values (for reports, traces and tuning), whatever alert.screen says.
+  // Off by default: with alert.screen on, records that provably raise no
+  // alert may come back with prediction->bounds.screened set.
+  void keep_full_bounds(bool on) { full_bounds_ = on; }
+
   // Counts a refusal made before the engine (by a parser) so one place holds all counts.
   void count_rejection(RejectReason reason) { counters_.rejected.add(reason); }
 
@@ -104,6 +110,7 @@ class Engine {
   detect::FdrState fdr_state_;
   detect::LimitTable limits_table_;  // CUSUM limits cached by value (a speed-up, not state)
   EngineCounters counters_;
+  bool full_bounds_ = false;
 };
 
 }  // namespace tallyd

@@ -60,6 +60,7 @@ struct AlertSpec {
   int draws = 10000;                    // simulate: draws per record
   int quadrature_nodes = 48;            // quadrature: Gauss-Hermite nodes
   std::uint64_t seed = 1;               // simulate: base seed of the reproducible draws
+  bool screen = false;                  // settle unremarkable records before the full bounds (bounds::Options::screen)
 };
 
 // Everything that governs one series.

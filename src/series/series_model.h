@@ -52,7 +52,11 @@ class SeriesModel {
 
   // Predictive bounds for `obs` from the current fit. Precondition: ready()
   // and !missing_covariate(obs). Const: judging never changes the model.
-  Prediction predict(const Observation& obs) const;
+  // With `allow_screen` and alert.screen on, a record that provably raises
+  // no bound alert may come back with bounds.screened set (no integer
+  // bounds; see bounds::Bounds); calling again without it gives the full
+  // bounds of the same record (the draws are seeded per record).
+  Prediction predict(const Observation& obs, bool allow_screen = false) const;
 
   // Adds `obs` to the training history, trims the window, refits if due.
   // Precondition: obs.time is later than every record learned so far.
