@@ -82,6 +82,17 @@ IngestResult Engine::ingest(const Observation& obs) {
     const bool screen = !full_bounds_ && !fdr_.enabled &&
                         !(s.alert.method == bounds::Method::simulate && s.detect.shift);
     r.prediction = model.predict(obs, screen);
+    if (s.model.refit_on_doubt && model.records_since_refit() > 0) {
+      // The fit lags the newest records (refit_every > 1). Keep its verdict
+      // only for a record far inside its bounds; otherwise catch up first,
+      // so every record near alpha is judged by a fit of all earlier records.
+      const bounds::Bounds& b = r.prediction->bounds;
+      const double clear = kDoubtFactor * s.alert.alpha;
+      if (!(b.p_high > clear && b.p_low > clear)) {
+        model.refit();
+        r.prediction = model.predict(obs, screen);
+      }
+    }
     r.alert = judge_count(obs, r.prediction->bounds, model.settings().alert);
     ++counters_.judged;
     if (fdr_.enabled) {

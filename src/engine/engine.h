@@ -26,6 +26,11 @@ namespace tallyd {
 class StateWriter;
 class StateReader;
 
+// model.refit_on_doubt: a record judged by a fit older than its newest
+// records is judged again after a refit unless both its p-values exceed
+// this multiple of alpha (or the screen's lower bounds on them do).
+inline constexpr double kDoubtFactor = 10;
+
 struct EngineLimits {
   std::size_t max_series = 100000;  // new series ids beyond this are rejected (too_many_series)
 };

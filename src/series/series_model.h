@@ -79,6 +79,8 @@ class SeriesModel {
   const std::string& last_fit_note() const { return last_fit_note_; }
   glm::FitStatus last_fit_status() const { return last_fit_status_; }
   std::uint64_t fits_done() const { return fits_done_; }
+  // Records learned since the last refit (0 right after one).
+  std::size_t records_since_refit() const { return since_refit_; }
 
   // Every field that decides future predictions (history, covariates, fit
   // with its warm-start values, counters), in the layout of core/state_codec.h.
