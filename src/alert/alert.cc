@@ -4,6 +4,8 @@ namespace tallyd {
 
 std::string_view to_string(AlertSide s) { return s == AlertSide::high ? "high" : "low"; }
 
+std::string_view to_string(EpisodeStep s) { return s == EpisodeStep::opened ? "new" : "ongoing"; }
+
 std::optional<Alert> judge_count(const Observation& obs, const bounds::Bounds& b, const AlertSpec& spec) {
   const bool watch_high = spec.direction != Direction::low;
   const bool watch_low = spec.direction != Direction::high;

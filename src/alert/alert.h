@@ -14,6 +14,20 @@ namespace tallyd {
 enum class AlertSide { high, low };
 std::string_view to_string(AlertSide s);
 
+// Where an alert stands in its episode (alert/episode_tracker.h).
+enum class EpisodeStep {
+  opened,     // the first alert of a new episode; JSON word "new"
+  continued,  // a later alert of an episode already open; JSON word "ongoing"
+};
+std::string_view to_string(EpisodeStep s);
+
+// The episode an alert belongs to: set by the episode tracker when the alert
+// is written, absent before (e.g. while it waits in the Benjamini-Hochberg gate).
+struct EpisodeTag {
+  std::string id;  // "<series>/<direction>/<n>", n counting that series' episodes in that direction from 1
+  EpisodeStep step = EpisodeStep::opened;
+};
+
 struct Alert {
   TimePoint time;
   std::string series;
@@ -31,6 +45,7 @@ struct Alert {
   // p_value); shift - the CUSUM value in nats that crossed its limit;
   // low_run - the number of records in the run.
   double statistic = 0;
+  std::optional<EpisodeTag> episode;  // set by the episode tracker; written after every other key
 };
 
 // An alert for `obs` carrying its bounds, on `side` with tail probability

@@ -9,18 +9,47 @@ namespace {
 // JSON string escaping via nlohmann (handles control characters and UTF-8).
 std::string quoted(const std::string& s) { return nlohmann::json(s).dump(); }
 
+std::string alert_summary(const Alert& a);
+
 }  // namespace
 
 std::string alert_json(const Alert& a) {
   // Fixed notation: expected to 4 significant decimals, p-values to 4
   // significant digits; fmt's formatting is locale-independent and exact.
-  return fmt::format(
-      R"({{"time":"{}","series":{},"count":{},"expected":{:.4f},"lower":{},"upper":{},"p_value":{:.4g},"direction":"{}","exposure":{:.6g},"alpha":{:.6g},"detector":"{}","statistic":{:.6g}}})",
+  std::string line = fmt::format(
+      R"({{"time":"{}","series":{},"count":{},"expected":{:.4f},"lower":{},"upper":{},"p_value":{:.4g},"direction":"{}","exposure":{:.6g},"alpha":{:.6g},"detector":"{}","statistic":{:.6g})",
       format_time(a.time), quoted(a.series), a.count, a.expected, a.lower, a.upper, a.p_value,
       to_string(a.side), a.exposure, a.alpha, a.detector, a.statistic);
+  // Appended, so the keys written before episodes existed stay a prefix in the same order.
+  if (a.episode)
+    line += fmt::format(R"(,"episode":{},"episode_state":"{}")", quoted(a.episode->id), to_string(a.episode->step));
+  line += '}';
+  return line;
 }
 
 std::string alert_text(const Alert& a) {
+  std::string line = alert_summary(a);
+  if (a.episode) line += fmt::format(" [episode {} {}]", a.episode->id, to_string(a.episode->step));
+  return line;
+}
+
+std::string episode_end_json(const EpisodeEnd& e) {
+  return fmt::format(
+      R"({{"episode_closed":{},"series":{},"direction":"{}","opened":"{}","last_alert":"{}","closed":"{}","alerts":{},"quiet_records":{}}})",
+      quoted(e.id), quoted(e.series), to_string(e.side), format_time(e.opened), format_time(e.last_alert),
+      format_time(e.closed), e.alerts, e.quiet_records);
+}
+
+std::string episode_end_text(const EpisodeEnd& e) {
+  return fmt::format("{} {} {} episode {} closed: {} alert{} from {} to {}, then {} record{} with no {} alert",
+                     format_time(e.closed), e.series, e.side == AlertSide::high ? "HIGH" : "LOW", e.id, e.alerts,
+                     e.alerts == 1 ? "" : "s", format_time(e.opened), format_time(e.last_alert), e.quiet_records,
+                     e.quiet_records == 1 ? "" : "s", to_string(e.side));
+}
+
+namespace {
+
+std::string alert_summary(const Alert& a) {
   if (a.detector == "shift")
     return fmt::format("{} {} {} sustained shift: CUSUM {:.3g} nats over its limit (count {}, expected {:.1f}, exposure {:.6g})",
                        format_time(a.time), a.series, a.side == AlertSide::high ? "HIGH" : "LOW", a.statistic,
@@ -34,5 +63,7 @@ std::string alert_text(const Alert& a) {
   return fmt::format("{} {} LOW count {} < lower {} (expected {:.1f}, p={:.2g}, exposure {:.6g})",
                      format_time(a.time), a.series, a.count, a.lower, a.expected, a.p_value, a.exposure);
 }
+
+}  // namespace
 
 }  // namespace tallyd

@@ -89,8 +89,9 @@ Status write_file(const std::string& path, const Engine& engine, const Marks& ma
 Result<Restored> decode(std::string_view text, std::string_view name, const SettingsTable& settings,
                         EngineLimits limits, detect::FdrSpec fdr) {
   const std::size_t eol = text.find('\n');
-  if (eol == std::string_view::npos || text.substr(0, eol) != kFirstLine)
-    return Error{fmt::format("{}: not a tallyd checkpoint of format version 2 (first line is '{}'); "
+  const bool v2 = eol != std::string_view::npos && text.substr(0, eol) == kFirstLineV2;
+  if (eol == std::string_view::npos || (text.substr(0, eol) != kFirstLine && !v2))
+    return Error{fmt::format("{}: not a tallyd checkpoint of format version 3 or 2 (first line is '{}'); "
                              "refusing to load it",
                              name, text.substr(0, std::min<std::size_t>(eol, 60)))};
   // The seal is the last line; anything cut short has none (or a wrong one).
@@ -142,7 +143,7 @@ Result<Restored> decode(std::string_view text, std::string_view name, const Sett
     out.marks.files.push_back(std::move(f));
   }
   out.engine = std::make_unique<Engine>(settings, limits, fdr);
-  out.engine->load_state(r);
+  out.engine->load_state(r, !v2);
   if (!r.failed() && !r.at_end()) r.fail("unexpected data after the engine state");
   if (r.failed())
     return Error{fmt::format("{}: checkpoint does not match this build or config ({}); refusing to load it", name,

@@ -169,7 +169,8 @@ class Reader {
   }
 
   void read_alert(const toml::table& t, std::string_view prefix, AlertSpec& a) {
-    check_keys(t, prefix, {"alpha", "direction", "method", "draws", "seed", "quadrature_nodes", "screen"});
+    check_keys(t, prefix, {"alpha", "direction", "method", "draws", "seed", "quadrature_nodes", "screen",
+                           "episode_close_records"});
     if (const toml::node* n = t.get("alpha")) {
       std::optional<double> v = n->value<double>();
       if (!v || !(*v > 0 && *v < 0.5)) fail(*n, join(prefix, "alpha"), "must be a number between 0 and 0.5");
@@ -196,6 +197,10 @@ class Reader {
       else a.seed = static_cast<std::uint64_t>(v->get());
     }
     if (auto* v = get<toml::value<bool>>(t, "screen", prefix, "true or false")) a.screen = v->get();
+    if (auto* v = get<toml::value<int64_t>>(t, "episode_close_records", prefix, "an integer")) {
+      if (v->get() < 1 || v->get() > 10000) fail(*v, join(prefix, "episode_close_records"), "must be between 1 and 10000");
+      else a.episode_close_records = static_cast<std::uint32_t>(v->get());
+    }
   }
 
   void read_detect(const toml::table& t, std::string_view prefix, DetectSpec& d) {
@@ -218,7 +223,7 @@ class Reader {
   }
 
   void read_fdr(const toml::table& t, detect::FdrSpec& f) {
-    check_keys(t, "fdr", {"rate", "step"});
+    check_keys(t, "fdr", {"rate", "step", "release_delay", "release_idle"});
     f.enabled = true;  // the table's presence turns it on
     if (const toml::node* n = t.get("rate")) {
       std::optional<double> v = n->value<double>();
@@ -231,6 +236,19 @@ class Reader {
       else if (d->count() <= 0) fail(*v, "fdr.step", "must be longer than 0 seconds");
       else f.step = *d;
     }
+    // Service only: when `serve` releases the open step (daemon/step_release.h).
+    auto wall = [&](std::string_view key, std::int64_t min_seconds, Seconds& out) {
+      const std::string name = fmt::format("fdr.{}", key);
+      if (auto* v = get<toml::value<std::string>>(t, key, "fdr", "a duration string like \"1d\"")) {
+        auto d = parse_duration(v->get());
+        if (!d) fail(*v, name, d.error().message);
+        else if (d->count() < min_seconds || d->count() > 30 * 86400)
+          fail(*v, name, fmt::format("must be from {}s to 30d", min_seconds));
+        else out = *d;
+      }
+    };
+    wall("release_delay", 1, f.release_delay);
+    wall("release_idle", 1, f.release_idle);
   }
 
   void read_limits(const toml::table& t, EngineLimits& l) {

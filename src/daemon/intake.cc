@@ -2,7 +2,8 @@
 
 #include <spdlog/spdlog.h>
 
-#include "alert/alert_format.h"
+#include "daemon/step_release.h"
+#include "engine/output_lines.h"
 
 namespace tallyd::daemon {
 
@@ -14,7 +15,8 @@ void LatencyHistogram::add(double seconds) {
   ++total;
 }
 
-Intake::Intake(std::unique_ptr<Engine> engine, AlertLog& log) : engine_(std::move(engine)), log_(&log) {}
+Intake::Intake(std::unique_ptr<Engine> engine, AlertLog& log, SteadyTime started)
+    : engine_(std::move(engine)), log_(&log), last_line_(started) {}
 
 std::unique_ptr<Engine> Intake::replace_engine(std::unique_ptr<Engine> engine) {
   std::swap(engine, engine_);
@@ -44,6 +46,7 @@ void Intake::refuse(const Rejection& r, SourceFigures& figures) {
 }
 
 void Intake::offer(ParseOutcome& outcome, SourceFigures& figures, SteadyTime arrival) {
+  last_line_ = std::max(last_line_, arrival);
   switch (outcome.kind()) {
     case LineKind::skip: return;
     case LineKind::rejected: refuse(outcome.rejection(), figures); return;
@@ -54,19 +57,35 @@ void Intake::offer(ParseOutcome& outcome, SourceFigures& figures, SteadyTime arr
   if (r.rejection) {
     ++figures.rejected;
     log_refusal(*r.rejection);
-  } else if (r.alert) {
-    std::string json = alert_json(*r.alert);
-    const std::string text = alert_text(*r.alert);
-    if (Status s = log_->write(json, text); !s) {
-      ++write_failures_;
-      spdlog::error("{}", s.error().message);
-    }
-    spdlog::info("alert: {}", text);
-    last_alerts_.push_back(std::move(json));
-    if (last_alerts_.size() > 20) last_alerts_.pop_front();
+  } else {
+    write_lines(output_lines(r));
   }
   const std::chrono::duration<double> took = std::chrono::steady_clock::now() - arrival;
   latency_.add(took.count());
+}
+
+void Intake::write_lines(std::vector<OutputLine> lines) {
+  for (OutputLine& l : lines) {
+    if (Status s = log_->write(l.json, l.text); !s) {
+      ++write_failures_;
+      spdlog::error("{}", s.error().message);
+    }
+    spdlog::info("{}: {}", l.alert ? "alert" : "episode", l.text);
+    if (!l.alert) continue;
+    last_alerts_.push_back(std::move(l.json));
+    if (last_alerts_.size() > 20) last_alerts_.pop_front();
+  }
+}
+
+bool Intake::release_step(TimePoint wall_now, SteadyTime now, const detect::FdrSpec& spec) {
+  if (!step_release_due(engine_->fdr_state(), spec, wall_now, now - last_line_)) return false;
+  const detect::FdrState& before = engine_->fdr_state();
+  spdlog::info("releasing time step {} of the control across series ({} records waiting): no line read for {}s",
+               before.open_step.value_or(0), before.pending.size(),
+               std::chrono::duration_cast<std::chrono::seconds>(now - last_line_).count());
+  write_lines(output_lines(engine_->flush()));
+  ++steps_released_;
+  return true;
 }
 
 }  // namespace tallyd::daemon

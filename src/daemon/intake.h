@@ -14,6 +14,7 @@
 
 #include "daemon/alert_log.h"
 #include "engine/engine.h"
+#include "engine/output_lines.h"
 #include "feed/parse_outcome.h"
 
 namespace tallyd::daemon {
@@ -43,11 +44,19 @@ struct LatencyHistogram {
 
 class Intake {
  public:
-  Intake(std::unique_ptr<Engine> engine, AlertLog& log);
+  // `started`: when the service started (the idle time of the step release counts from it until a line is read).
+  Intake(std::unique_ptr<Engine> engine, AlertLog& log, SteadyTime started = std::chrono::steady_clock::now());
 
-  // One decoded line from a source. Records go to the engine; refusals are
-  // counted and logged at most a few times a second.
+  // One decoded line from a source. Records go to the engine, and the lines
+  // its result adds (alerts, episode closings: engine/output_lines.h) to the
+  // alert log; refusals are counted and logged at most a few times a second.
   void offer(ParseOutcome& outcome, SourceFigures& figures, SteadyTime arrival);
+  // With control across series on: releases the engine's open time step
+  // (Engine::flush) and writes its alerts when daemon/step_release.h says it
+  // is due at wall-clock `wall_now`, `now` being the steady clock (the idle
+  // time runs from the latest line offered). Returns whether it released.
+  bool release_step(TimePoint wall_now, SteadyTime now, const detect::FdrSpec& spec);
+  std::uint64_t steps_released() const { return steps_released_; }
   // A refusal made outside a decoder (e.g. a datagram too large, a refused connection).
   void refuse(const Rejection& r, SourceFigures& figures);
   // A warning that is not a record's refusal (e.g. a connection over the
@@ -60,17 +69,20 @@ class Intake {
   std::unique_ptr<Engine> replace_engine(std::unique_ptr<Engine> engine);
 
   const LatencyHistogram& latency() const { return latency_; }
-  const std::deque<std::string>& last_alerts() const { return last_alerts_; }  // JSON lines, newest last
+  const std::deque<std::string>& last_alerts() const { return last_alerts_; }  // JSON lines of alerts (not closings), newest last
   std::uint64_t write_failures() const { return write_failures_; }
 
  private:
   void log_refusal(const Rejection& r) { warn_limited(r.describe()); }
+  void write_lines(std::vector<OutputLine> lines);
 
   std::unique_ptr<Engine> engine_;
   AlertLog* log_;
   LatencyHistogram latency_;
   std::deque<std::string> last_alerts_;
   std::uint64_t write_failures_ = 0;
+  SteadyTime last_line_;               // arrival of the latest line offered (or the start)
+  std::uint64_t steps_released_ = 0;   // time steps released by release_step
   // Rate limit for refusal warnings: at most kWarnPerSecond per second.
   static constexpr int kWarnPerSecond = 5;
   std::chrono::steady_clock::time_point warn_window_{};

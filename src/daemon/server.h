@@ -59,6 +59,7 @@ class Server {
   void poll_files();
   void schedule_poll(std::chrono::milliseconds delay);
   void schedule_checkpoint();
+  void schedule_release();
   Status write_checkpoint();
   void wait_signals();
   void reload();
@@ -89,7 +90,7 @@ class Server {
   std::vector<std::unique_ptr<TcpSource>> tcp_;
   std::vector<std::unique_ptr<UdpSource>> udp_;
   std::unique_ptr<StatusHttp> status_;
-  std::unique_ptr<asio::steady_timer> poll_timer_, checkpoint_timer_;
+  std::unique_ptr<asio::steady_timer> poll_timer_, checkpoint_timer_, release_timer_;
   std::unique_ptr<asio::signal_set> signals_;
   std::unique_ptr<asio::posix::stream_descriptor> stdin_;
   std::unique_ptr<StdinReader> stdin_reader_;

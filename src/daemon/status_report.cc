@@ -42,6 +42,15 @@ std::string Server::status_json() const {
     rej[std::string(reject_label(static_cast<RejectReason>(i)))] = c.rejected.by_reason[i];
   j["rejected"] = rej;
   j["alerts"] = {{"high", c.alerts_high}, {"low", c.alerts_low}};
+  j["episodes"] = {{"open", e.episodes().open_count()},
+                   {"opened", e.episodes().totals().opened},
+                   {"closed", e.episodes().totals().closed}};
+  if (config_->fdr.enabled) {
+    const detect::FdrState& f = e.fdr_state();
+    j["fdr"] = {{"open_step", f.open_step ? json(*f.open_step) : json(nullptr)},
+                {"waiting_records", f.pending.size()},
+                {"steps_released_by_rule", intake_->steps_released()}};
+  }
   j["alert_log"] = {{"path", alert_log_->path()}, {"bytes", alert_log_->bytes()}};
   j["checkpoint"] = {{"path", config_->service.checkpoint_path},
                      {"written", checkpoints_written_},
@@ -90,6 +99,16 @@ std::string Server::metrics_text() const {
   m += "# TYPE tallyd_alerts counter\n# HELP tallyd_alerts Alerts written, by direction.\n";
   m += fmt::format("tallyd_alerts_total{{direction=\"high\"}} {}\n", c.alerts_high);
   m += fmt::format("tallyd_alerts_total{{direction=\"low\"}} {}\n", c.alerts_low);
+  m += "# TYPE tallyd_episodes_open gauge\n# HELP tallyd_episodes_open Episodes open now (series and direction with an alert not yet followed by enough quiet records).\n";
+  m += fmt::format("tallyd_episodes_open {}\n", e.episodes().open_count());
+  m += "# TYPE tallyd_episodes_opened counter\n# HELP tallyd_episodes_opened Episodes opened.\n";
+  m += fmt::format("tallyd_episodes_opened_total {}\n", e.episodes().totals().opened);
+  m += "# TYPE tallyd_episodes_closed counter\n# HELP tallyd_episodes_closed Episodes closed.\n";
+  m += fmt::format("tallyd_episodes_closed_total {}\n", e.episodes().totals().closed);
+  m += "# TYPE tallyd_fdr_waiting_records gauge\n# HELP tallyd_fdr_waiting_records Judged records waiting for their time step to be released ([fdr]).\n";
+  m += fmt::format("tallyd_fdr_waiting_records {}\n", e.fdr_state().pending.size());
+  m += "# TYPE tallyd_fdr_steps_released counter\n# HELP tallyd_fdr_steps_released Time steps released by the service's quiet rule ([fdr] release_delay, release_idle).\n";
+  m += fmt::format("tallyd_fdr_steps_released_total {}\n", intake_->steps_released());
   m += "# TYPE tallyd_series gauge\n# HELP tallyd_series Series with a model.\n";
   m += fmt::format("tallyd_series {}\n", e.series_count());
   m += "# TYPE tallyd_checkpoint_age_seconds gauge\n# HELP tallyd_checkpoint_age_seconds Seconds since the last checkpoint was written.\n";

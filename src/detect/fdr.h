@@ -26,6 +26,11 @@ struct FdrSpec {
   bool enabled = false;    // when false, every count is judged alone at alert.alpha
   double rate = 0.05;      // q: the false discovery rate per time step, in (0, 0.5)
   Seconds step{7 * 86400}; // time-step length; steps are [k * step, (k + 1) * step) in UTC epoch seconds
+  // `serve` only (replay closes the last step at the end of its feeds): the
+  // open step is released once the wall clock is release_delay past its end
+  // and no line has been read for release_idle (daemon/step_release.h).
+  Seconds release_delay{86400};
+  Seconds release_idle{60};
 };
 
 // One judged record waiting for its time step to close: the alert it would

@@ -20,6 +20,7 @@ std::vector<Alert> Engine::flush() {
   if (!fdr_.enabled) return {};
   std::vector<Alert> out = detect::fdr_close(fdr_state_, fdr_);
   count_released(out);
+  for (Alert& a : out) episodes_.on_alert(a);
   return out;
 }
 
@@ -39,6 +40,24 @@ IngestResult Engine::reject(const Observation& obs, RejectReason reason, std::st
   r.kind = IngestResult::Kind::rejected;
   r.rejection = Rejection{reason, obs.where, std::move(detail)};
   return r;
+}
+
+void Engine::track(IngestResult& r, const Observation& obs, std::uint32_t close_after) {
+  for (Alert& a : r.released) episodes_.on_alert(a);
+  if (r.kind != IngestResult::Kind::judged) return;
+  std::vector<AlertSide> alerted;
+  if (r.alert) {
+    episodes_.on_alert(*r.alert);
+    alerted.push_back(r.alert->side);
+  }
+  for (Alert& a : r.detector_alerts) {
+    episodes_.on_alert(a);
+    alerted.push_back(a.side);
+  }
+  // With [fdr] on, this record's own bound decision waits for its step: it
+  // counts as quiet here, and a bound_fdr alert released later opens or
+  // continues an episode when it comes.
+  episodes_.on_judged(obs.series, obs.time, alerted, close_after, r.closed);
 }
 
 IngestResult Engine::ingest(const Observation& obs) {
@@ -135,6 +154,7 @@ IngestResult Engine::ingest(const Observation& obs) {
   // (model.alerted_weight), so an outbreak does not become its own baseline.
   const bool alerted = bound_alerted || r.alert || !r.detector_alerts.empty();
   model.learn(obs, alerted ? model.settings().model.alerted_weight : 1.0);
+  track(r, obs, model.settings().alert.episode_close_records);
   return r;
 }
 

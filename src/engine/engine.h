@@ -13,6 +13,7 @@
 #include <vector>
 
 #include "alert/alert.h"
+#include "alert/episode_tracker.h"
 #include "core/observation.h"
 #include "core/reject.h"
 #include "detect/detectors.h"
@@ -50,6 +51,10 @@ struct IngestResult {
   // back here from the first record of a later step (any series). See flush().
   std::vector<Alert> released;
   std::optional<Rejection> rejection;    // when rejected
+  // Episodes this record closed (when judged): it completed a run of
+  // alert.episode_close_records quiet records in their direction. Every alert
+  // above carries its episode (Alert::episode); see alert/episode_tracker.h.
+  std::vector<EpisodeEnd> closed;
 };
 
 struct EngineCounters {
@@ -73,8 +78,13 @@ class Engine {
 
   // Closes the open time step of the control across series and returns its
   // alerts (empty when that control is off). Replay calls it after the last
-  // record; a service at shutdown or when it knows a step is complete.
+  // record; the service when daemon/step_release.h says the step is due
+  // (not at shutdown: the open step is kept in the checkpoint).
   std::vector<Alert> flush();
+  // Open episodes and totals (part of a checkpoint). Every alert the engine
+  // returns has passed through this tracker, in the order it is returned; a
+  // new way of returning alerts must call episodes_.on_alert on each as well.
+  const EpisodeTracker& episodes() const { return episodes_; }
   // The state of the control across series (part of a checkpoint).
   const detect::FdrState& fdr_state() const { return fdr_state_; }
 
@@ -101,11 +111,16 @@ class Engine {
   // the same settings; on failure the reader carries the error and the engine
   // must be discarded. Series saved beyond limits.max_series are kept.
   void save_state(StateWriter& w) const;
-  void load_state(StateReader& r);
+  // with_episodes = false reads state saved before episodes existed
+  // (checkpoint format 2): no episode open, numbering starts at 1.
+  void load_state(StateReader& r, bool with_episodes = true);
 
  private:
   IngestResult reject(const Observation& obs, RejectReason reason, std::string detail);
   void count_released(const std::vector<Alert>& alerts);
+  // Passes r's alerts, in output order, and then the judged record itself
+  // through the episode tracker.
+  void track(IngestResult& r, const Observation& obs, std::uint32_t close_after);
 
   const SettingsTable* settings_;
   EngineLimits limits_;
@@ -116,6 +131,7 @@ class Engine {
   detect::LimitTable limits_table_;  // CUSUM limits cached by value (a speed-up, not state)
   EngineCounters counters_;
   bool full_bounds_ = false;
+  EpisodeTracker episodes_;
 };
 
 }  // namespace tallyd

@@ -1,5 +1,6 @@
 // Saving and restoring the whole engine: counters, the cross-series
-// Benjamini-Hochberg gate, then each series in id order with its detector state.
+// Benjamini-Hochberg gate, then each series in id order with its detector
+// state, then the episode tracker.
 #include <fmt/format.h>
 
 #include "core/state_codec.h"
@@ -89,9 +90,10 @@ void Engine::save_state(StateWriter& w) const {
     w.u64(d.run_records);
     w.newline();
   }
+  episodes_.save_state(w);
 }
 
-void Engine::load_state(StateReader& r) {
+void Engine::load_state(StateReader& r, bool with_episodes) {
   r.expect("engine");
   counters_.records = r.u64();
   counters_.judged = r.u64();
@@ -134,6 +136,8 @@ void Engine::load_state(StateReader& r) {
     detectors_.emplace(id, d);
     series_.emplace(std::move(id), std::move(model));
   }
+  episodes_ = EpisodeTracker{};
+  if (with_episodes && !r.failed()) episodes_.load_state(r);
 }
 
 }  // namespace tallyd

@@ -2,16 +2,18 @@
 
 #include <fmt/format.h>
 
-#include "alert/alert_format.h"
+#include "engine/output_lines.h"
 
 namespace tallyd {
 
 std::uint64_t replay_feeds(FeedSet& feeds, Engine& engine, const ReplayOutputs& out) {
   std::uint64_t written = 0;
-  auto write = [&](const Alert& a) {
-    if (out.alerts_json) *out.alerts_json << alert_json(a) << '\n';
-    if (out.alerts_text) *out.alerts_text << alert_text(a) << '\n';
-    ++written;
+  auto write = [&](const std::vector<OutputLine>& lines) {
+    for (const OutputLine& l : lines) {
+      if (out.alerts_json) *out.alerts_json << l.json << '\n';
+      if (out.alerts_text) *out.alerts_text << l.text << '\n';
+      written += l.alert ? 1 : 0;
+    }
   };
   FeedItem item;
   while (feeds.next(item)) {
@@ -28,12 +30,10 @@ std::uint64_t replay_feeds(FeedSet& feeds, Engine& engine, const ReplayOutputs& 
       continue;
     }
     if (out.on_record) out.on_record(obs, r);
-    for (const Alert& a : r.released) write(a);
-    if (r.alert) write(*r.alert);
-    for (const Alert& a : r.detector_alerts) write(a);
+    write(output_lines(r));
   }
   // The last time step of the control across series is complete once the feeds end.
-  for (const Alert& a : engine.flush()) write(a);
+  write(output_lines(engine.flush()));
   return written;
 }
 

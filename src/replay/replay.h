@@ -15,8 +15,9 @@
 namespace tallyd {
 
 struct ReplayOutputs {
-  std::ostream* alerts_json = nullptr;  // JSON Lines, one object per alert; null = not written
-  std::ostream* alerts_text = nullptr;  // one human-readable line per alert; null = not written
+  // JSON Lines, one object per alert and per episode closing (engine/output_lines.h); null = not written
+  std::ostream* alerts_json = nullptr;
+  std::ostream* alerts_text = nullptr;  // the human-readable twin of each line; null = not written
   // Called for every refused record (parser or engine), in feed order.
   std::function<void(const Rejection&)> on_rejection;
   // Called for every record the engine accepted (judged or warming up), in
@@ -25,7 +26,8 @@ struct ReplayOutputs {
 };
 
 // Feeds every item of `feeds` through `engine` in merged time order and
-// writes each alert as it is raised. Returns the number of alerts written.
+// writes each alert and episode closing as it comes. Returns the number of
+// alerts written (closing lines are not alerts).
 std::uint64_t replay_feeds(FeedSet& feeds, Engine& engine, const ReplayOutputs& out);
 
 // "1234 records: 1100 judged, 100 warming up, 34 rejected (bad_count 3, ...); 12 alerts (10 high, 2 low); 24 series"

@@ -3,7 +3,7 @@
 #include <algorithm>
 #include <vector>
 
-#include "alert/alert_format.h"
+#include "engine/output_lines.h"
 
 namespace tallyd {
 
@@ -11,10 +11,13 @@ std::uint64_t replay_feeds_sharded(FeedSet& feeds, ShardedEngine& engine, const 
                                    std::size_t batch_records) {
   batch_records = std::max<std::size_t>(batch_records, 1);
   std::uint64_t written = 0;
-  auto write = [&](const Alert& a) {
-    if (out.alerts_json) *out.alerts_json << alert_json(a) << '\n';
-    if (out.alerts_text) *out.alerts_text << alert_text(a) << '\n';
-    ++written;
+  // The same lines, in the same order, as replay_feeds writes.
+  auto write = [&](const std::vector<OutputLine>& lines) {
+    for (const OutputLine& l : lines) {
+      if (out.alerts_json) *out.alerts_json << l.json << '\n';
+      if (out.alerts_text) *out.alerts_text << l.text << '\n';
+      written += l.alert ? 1 : 0;
+    }
   };
   std::vector<Observation> batch;
   batch.reserve(batch_records);
@@ -27,8 +30,7 @@ std::uint64_t replay_feeds_sharded(FeedSet& feeds, ShardedEngine& engine, const 
         continue;
       }
       if (out.on_record) out.on_record(batch[i], r);
-      if (r.alert) write(*r.alert);
-      for (const Alert& a : r.detector_alerts) write(a);
+      write(output_lines(r));
     }
     batch.clear();
   };

@@ -4,7 +4,8 @@
 // Records are read in merged time order into batches of `batch_records`,
 // each batch is judged by the shards in parallel, and the alerts are written
 // in record order, so the alert output is byte-identical to replay_feeds
-// with one Engine (engine/sharded_engine.h says why the results are). A
+// with one Engine, episode closings included (engine/sharded_engine.h says
+// why the results are; episode ids are per series). A
 // parser's refusals are reported as they are read, before the alerts of
 // the batch they fall in; the engine's own refusals in record order.
 // Not supported here: the control across series ([fdr]), which decides

@@ -65,6 +65,9 @@ struct AlertSpec {
   int quadrature_nodes = 48;            // quadrature: Gauss-Hermite nodes
   std::uint64_t seed = 1;               // simulate: base seed of the reproducible draws
   bool screen = false;                  // settle unremarkable records before the full bounds (bounds::Options::screen)
+  // Judged records in a row without an alert in an open episode's direction
+  // that close that episode (alert/episode_tracker.h); 1-10000.
+  std::uint32_t episode_close_records = 3;
 };
 
 // Everything that governs one series.

@@ -7,9 +7,11 @@
 #include <vector>
 
 #include <catch2/catch.hpp>
+#include <fmt/format.h>
 
 #include "alert/alert_format.h"
 #include "config/config.h"
+#include "engine/output_lines.h"
 #include "feed/feed_file.h"
 
 using namespace tallyd;
@@ -35,8 +37,8 @@ MonitorConfig demo_config(const std::string& name) {
 std::string alerts_of(Engine& engine, const std::vector<Observation>& records, std::size_t from, std::size_t to) {
   std::string out;
   for (std::size_t i = from; i < to; ++i) {
-    IngestResult r = engine.ingest(records[i]);
-    if (r.alert) out += alert_json(*r.alert) + "\n";
+    // Every line the alert log gets: alerts with their episode, and closings.
+    for (const OutputLine& l : output_lines(engine.ingest(records[i]))) out += l.json + "\n";
   }
   return out;
 }
@@ -53,6 +55,8 @@ TEST_CASE("save, restore, continue: the same alerts as an uninterrupted run", "[
     Engine whole(config.settings, config.limits);
     const std::string expected = alerts_of(whole, records, 0, records.size());
     REQUIRE_FALSE(expected.empty());
+    // Episodes open and close across the cuts, so their state must carry over.
+    REQUIRE(whole.episodes().totals().closed > 0);
 
     // Interrupt at several points, each time through the encoded text (one
     // point for the long sensor feed, to keep the suite quick).
@@ -95,10 +99,7 @@ TEST_CASE("save, restore, continue with low-count runs and control across series
   auto every_alert = [](Engine& engine, const std::vector<Observation>& recs, std::size_t from, std::size_t to) {
     std::string out;
     for (std::size_t i = from; i < to; ++i) {
-      IngestResult r = engine.ingest(recs[i]);
-      if (r.alert) out += alert_json(*r.alert) + "\n";
-      for (const Alert& a : r.detector_alerts) out += alert_json(a) + "\n";
-      for (const Alert& a : r.released) out += alert_json(a) + "\n";
+      for (const OutputLine& l : output_lines(engine.ingest(recs[i]))) out += l.json + "\n";
     }
     return out;
   };
@@ -150,9 +151,9 @@ TEST_CASE("a damaged, truncated or foreign checkpoint is refused whole", "[check
   REQUIRE_FALSE(bad);
   CHECK_THAT(bad.error().message, Catch::Contains("corrupt"));
 
-  auto foreign = checkpoint::decode("tallyd-checkpoint 3\nmarks\n", "c", config.settings, config.limits);
+  auto foreign = checkpoint::decode("tallyd-checkpoint 4\nmarks\n", "c", config.settings, config.limits);
   REQUIRE_FALSE(foreign);
-  CHECK_THAT(foreign.error().message, Catch::Contains("not a tallyd checkpoint of format version 2"));
+  CHECK_THAT(foreign.error().message, Catch::Contains("not a tallyd checkpoint of format version 3 or 2"));
 
   // A sound file made under another model: refused, not loaded half-way.
   MonitorConfig other = config;
@@ -182,4 +183,38 @@ TEST_CASE("write_file replaces the checkpoint atomically and read_file finds it"
   REQUIRE(back->has_value());
   CHECK((*back)->engine->series_count() == engine.series_count());
   std::filesystem::remove_all(dir);
+}
+
+TEST_CASE("a format 2 checkpoint (before episodes) is read with no episode open", "[checkpoint]") {
+  const MonitorConfig config = demo_config("moth_traps.toml");
+  const std::vector<Observation> records = demo_records("moth_traps.csv");
+  Engine engine(config.settings, config.limits);
+  alerts_of(engine, records, 0, records.size());
+  REQUIRE(engine.episodes().totals().opened > 0);
+  const std::string v3 = checkpoint::encode(engine, checkpoint::Marks{});
+  // Rebuild the file as format 2 wrote it: the same body without the episode
+  // section, sealed with FNV-1a 64 (Fowler, Noll and Vo; offset basis and
+  // prime of the 64-bit variant, from memory).
+  const std::size_t body_from = v3.find('\n') + 1;
+  const std::size_t episodes_at = v3.find("\nepisodes ") + 1;
+  REQUIRE(episodes_at > body_from);
+  const std::string body = v3.substr(body_from, episodes_at - body_from);
+  std::uint64_t h = 14695981039346656037ull;
+  for (unsigned char c : body) {
+    h ^= c;
+    h *= 1099511628211ull;
+  }
+  const std::string v2 = fmt::format("tallyd-checkpoint 2\n{}seal {:016x} {}\n", body, h, body.size());
+  auto old = checkpoint::decode(v2, "old", config.settings, config.limits);
+  REQUIRE(old);
+  CHECK(old->engine->series_count() == engine.series_count());
+  CHECK(old->engine->episodes().open_count() == 0);
+  CHECK(old->engine->episodes().totals().opened == 0);
+  // It is written back as format 3.
+  CHECK(checkpoint::encode(*old->engine, checkpoint::Marks{}).rfind("tallyd-checkpoint 3\n", 0) == 0);
+  // A format 3 file without its episode section is not mistaken for one.
+  const std::string v3_short = fmt::format("tallyd-checkpoint 3\n{}seal {:016x} {}\n", body, h, body.size());
+  auto refused = checkpoint::decode(v3_short, "short", config.settings, config.limits);
+  REQUIRE_FALSE(refused);
+  CHECK_THAT(refused.error().message, Catch::Contains("does not match"));
 }

@@ -148,3 +148,42 @@ TEST_CASE("a missing config file is an error naming it", "[config]") {
   REQUIRE_FALSE(r.ok());
   CHECK_THAT(r.error().message, Catch::StartsWith("/nonexistent/monitor.toml: cannot open"));
 }
+
+TEST_CASE("episode and step-release keys: defaults, overrides, errors", "[config]") {
+  auto empty = parse_config("", "empty.toml");
+  REQUIRE(empty.ok());
+  CHECK(empty.value().settings.defaults.alert.episode_close_records == 3);
+  CHECK(empty.value().fdr.release_delay == Seconds{86400});
+  CHECK(empty.value().fdr.release_idle == Seconds{60});
+
+  auto r = parse_config(R"(
+[alert]
+episode_close_records = 5
+[fdr]
+release_delay = "12h"
+release_idle = "30s"
+[[series]]
+match = "weekly-*"
+alert.episode_close_records = 2
+)",
+                        "monitor.toml");
+  REQUIRE(r.ok());
+  CHECK(r.value().settings.defaults.alert.episode_close_records == 5);
+  CHECK(r.value().settings.for_series("weekly-3").alert.episode_close_records == 2);
+  CHECK(r.value().settings.for_series("daily-3").alert.episode_close_records == 5);
+  CHECK(r.value().fdr.release_delay == Seconds{12 * 3600});
+  CHECK(r.value().fdr.release_idle == Seconds{30});
+
+  const std::pair<const char*, const char*> bad[] = {
+      {"[alert]\nepisode_close_records = 0\n", "monitor.toml:2: alert.episode_close_records: must be between 1 and 10000"},
+      {"[alert]\nepisode_close_records = \"3\"\n", "monitor.toml:2: alert.episode_close_records: must be an integer"},
+      {"[fdr]\nrelease_idle = \"45d\"\n", "monitor.toml:2: fdr.release_idle: must be from 1s to 30d"},
+      {"[fdr]\nrelease_delay = \"soon\"\n", "monitor.toml:2: fdr.release_delay: duration 'soon'"},
+  };
+  for (const auto& [text, expected] : bad) {
+    auto e = parse_config(text, "monitor.toml");
+    INFO(text);
+    REQUIRE_FALSE(e.ok());
+    CHECK_THAT(e.error().message, Catch::Contains(expected));
+  }
+}

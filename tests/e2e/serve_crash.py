@@ -41,6 +41,10 @@ ref = os.path.join(work, "reference.jsonl")
 replay(tallyd, feed_src, model, ref)
 if os.path.getsize(ref) == 0:
     fail("the reference replay raised no alert; the test would prove nothing")
+with open(ref) as f:
+    ref_text = f.read()
+if '"episode_state":"ongoing"' not in ref_text or '"episode_closed"' not in ref_text:
+    fail("the reference has no continued or closed episode; the test would not cover episode state")
 
 with open(feed_src, "rb") as f:
     data = f.read()

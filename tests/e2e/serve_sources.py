@@ -14,6 +14,7 @@ import tempfile
 import time
 
 from serve_harness import Server, fail, replay, same_file
+import episode_check
 
 tallyd, src = sys.argv[1], sys.argv[2]
 work = tempfile.mkdtemp(prefix="tallyd-sources-")
@@ -90,6 +91,20 @@ def rejections(reason):
 # 1. A complete file gives the replay's alerts, byte for byte (reference: `tallyd replay`).
 server.wait_followed(feed)
 same_file(alerts, ref, "serve vs replay on a complete file")
+# Episode figures in /metrics against a direct count from the alert log.
+fig = episode_check.check(alerts)
+m = server.metrics()
+for name, key in (("tallyd_episodes_opened_total", "opened"), ("tallyd_episodes_closed_total", "closed"),
+                  ("tallyd_episodes_open", "open")):
+    if m.get(name) != fig[key]:
+        fail("%s is %s, the alert log says %d" % (name, m.get(name), fig[key]))
+if fig["closed"] == 0:
+    fail("the demo feed closes no episode; the metric check proves little")
+with open(os.path.join(work, "alerts.txt")) as f:
+    text_lines = f.read().splitlines()
+if len(text_lines) != fig["alerts"] + fig["closed"] or not all(
+        "[episode " in l or " closed: " in l for l in text_lines):
+    fail("the readable alert log should hold one line per alert and per closing, each naming its episode")
 
 # 2. TCP: CSV with its header first, then JSON Lines on another connection; one bad line each.
 def push(lines):
