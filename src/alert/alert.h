@@ -43,9 +43,13 @@ struct Alert {
                                    // "shift" = CUSUM (detect/shift_cusum.h); "low_run" = run of low counts
   // The detector's statistic when it fired: bound - the tail probability (as
   // p_value); shift - the CUSUM value in nats that crossed its limit;
-  // low_run - the number of records in the run.
+  // low_run - the number of records in the run; silence - the usual interval
+  // in seconds; silence_end - seconds since the series' previous record.
   double statistic = 0;
   std::optional<EpisodeTag> episode;  // set by the episode tracker; written after every other key
+  // Silence lines only (detect/silence.h; detector "silence" or "silence_end"):
+  // the series' last record before the silence. Written after the episode keys.
+  std::optional<TimePoint> last_seen;
 };
 
 // An alert for `obs` carrying its bounds, on `side` with tail probability

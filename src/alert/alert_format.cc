@@ -23,6 +23,8 @@ std::string alert_json(const Alert& a) {
   // Appended, so the keys written before episodes existed stay a prefix in the same order.
   if (a.episode)
     line += fmt::format(R"(,"episode":{},"episode_state":"{}")", quoted(a.episode->id), to_string(a.episode->step));
+  // Silence lines carry one more key, after every key the other lines have.
+  if (a.last_seen) line += fmt::format(R"(,"last_seen":"{}")", format_time(*a.last_seen));
   line += '}';
   return line;
 }
@@ -57,6 +59,14 @@ std::string alert_summary(const Alert& a) {
   if (a.detector == "low_run")
     return fmt::format("{} {} LOW run of {:.0f} low counts, joint probability {:.2g} (count {}, expected {:.1f})",
                        format_time(a.time), a.series, a.statistic, a.p_value, a.count, a.expected);
+  if (a.detector == "silence")
+    return fmt::format("{} {} SILENT: no record since {} (usual interval {})", format_time(a.time), a.series,
+                       a.last_seen ? format_time(*a.last_seen) : "?",
+                       format_duration(Seconds{static_cast<std::int64_t>(a.statistic)}));
+  if (a.detector == "silence_end")
+    return fmt::format("{} {} REPORTING again after {} without a record (count {}, exposure {:.6g})",
+                       format_time(a.time), a.series, format_duration(Seconds{static_cast<std::int64_t>(a.statistic)}),
+                       a.count, a.exposure);
   if (a.side == AlertSide::high)
     return fmt::format("{} {} HIGH count {} > upper {} (expected {:.1f}, p={:.2g}, exposure {:.6g})",
                        format_time(a.time), a.series, a.count, a.upper, a.expected, a.p_value, a.exposure);

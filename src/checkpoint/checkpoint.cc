@@ -89,11 +89,18 @@ Status write_file(const std::string& path, const Engine& engine, const Marks& ma
 Result<Restored> decode(std::string_view text, std::string_view name, const SettingsTable& settings,
                         EngineLimits limits, detect::FdrSpec fdr) {
   const std::size_t eol = text.find('\n');
-  const bool v2 = eol != std::string_view::npos && text.substr(0, eol) == kFirstLineV2;
-  if (eol == std::string_view::npos || (text.substr(0, eol) != kFirstLine && !v2))
-    return Error{fmt::format("{}: not a tallyd checkpoint of format version 3 or 2 (first line is '{}'); "
-                             "refusing to load it",
-                             name, text.substr(0, std::min<std::size_t>(eol, 60)))};
+  if (eol == std::string_view::npos || text.substr(0, eol) != kFirstLine) {
+    const std::string_view first = text.substr(0, std::min<std::size_t>(eol, 60));
+    // An older or newer tallyd's checkpoint is named as such: the operator
+    // decides whether to start fresh (--fresh) or run the version that wrote it.
+    const bool other_version = first.substr(0, 18) == "tallyd-checkpoint ";
+    return Error{fmt::format("{}: not a tallyd checkpoint of format version 4 (first line is '{}'); "
+                             "refusing to load it{}",
+                             name, first,
+                             other_version ? " (it was written by another tallyd version, whose state this one "
+                                             "cannot carry over)"
+                                           : "")};
+  }
   // The seal is the last line; anything cut short has none (or a wrong one).
   std::string_view rest = text.substr(eol + 1);
   const std::size_t seal_at = rest.rfind("seal ");
@@ -143,7 +150,7 @@ Result<Restored> decode(std::string_view text, std::string_view name, const Sett
     out.marks.files.push_back(std::move(f));
   }
   out.engine = std::make_unique<Engine>(settings, limits, fdr);
-  out.engine->load_state(r, !v2);
+  out.engine->load_state(r);
   if (!r.failed() && !r.at_end()) r.fail("unexpected data after the engine state");
   if (r.failed())
     return Error{fmt::format("{}: checkpoint does not match this build or config ({}); refusing to load it", name,

@@ -1,15 +1,15 @@
 // Checkpoints: the service's durable state in one file, replaced atomically.
 //
 // File layout (text, see core/state_codec.h for the token layout):
-//   line 1   "tallyd-checkpoint 3"                  format name and version
+//   line 1   "tallyd-checkpoint 4"                  format name and version
 //   body     "marks" section (alert log length, one line per followed file),
-//            then the engine state (counters, every series' model and history,
-//            open episodes and episode numbering)
+//            then the engine state (counters, records held for late arrivals,
+//            silence state, every series' model and history, open episodes
+//            and episode numbering)
 //   last     "seal <16 hex digits> <body bytes>"    FNV-1a 64 of the body
-// Version 2 (written before episodes existed) is still read: it restores with
-// no episode open and episode numbering from 1 (its alert log has no episode
-// ids to collide with). Any other first line is refused as foreign or of an
-// unknown version; a missing or wrong seal is refused as truncated or
+// Any other first line is refused: older versions (2, 3) with a message
+// saying it was written by another tallyd version (start once with --fresh
+// after an upgrade), anything else as foreign; a missing or wrong seal is refused as truncated or
 // corrupt. Nothing is restored unless the whole file checks out.
 //
 // Writing: to "<path>.tmp", fsync, rename over <path>, fsync the directory, so
@@ -28,8 +28,10 @@
 
 namespace tallyd::checkpoint {
 
-inline constexpr std::string_view kFirstLine = "tallyd-checkpoint 3";  // 2: detector and FDR state; 3: episodes
-inline constexpr std::string_view kFirstLineV2 = "tallyd-checkpoint 2";  // still read, see above
+// 2: detector and FDR state; 3: episodes; 4: held records (arrival hold) and
+// silence state. Any other first line, older versions included, is refused
+// (see decode): their engine state lacks sections this build needs.
+inline constexpr std::string_view kFirstLine = "tallyd-checkpoint 4";
 
 // Where one followed file had been read to: the byte after the last complete
 // line handed to the engine.

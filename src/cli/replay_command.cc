@@ -136,9 +136,19 @@ class ReplayCommand final : public Command {
  private:
   int run_sharded(const MonitorConfig& config, FeedSet& feeds, const ReplayOutputs& out, std::ofstream& alerts_file,
                   bool want_traces) {
-    if (config.fdr.enabled || want_traces) {
-      spdlog::error("--workers above 1 does not support {}",
-                    config.fdr.enabled ? "the control across series ([fdr] enabled)" : "--report or --plot-file");
+    // The shards call ingest directly: the arrival hold and the silence
+    // watch (Engine::offer), which keep one clock over all series, are left out.
+    bool silence = config.settings.defaults.detect.silence;
+    for (const SettingsRule& rule : config.settings.rules) silence = silence || rule.settings.detect.silence;
+    const ArrivalSpec& arrival = config.limits.arrival;
+    const char* unsupported = config.fdr.enabled ? "the control across series ([fdr] enabled)"
+                              : want_traces      ? "--report or --plot-file"
+                              : silence          ? "silence watching ([detect] silence)"
+                              : arrival.late_tolerance.count() != 0 || arrival.duplicates != DuplicatePolicy::refuse
+                                  ? "late or duplicate records ([arrival])"
+                                  : nullptr;
+    if (unsupported != nullptr) {
+      spdlog::error("--workers above 1 does not support {}", unsupported);
       return kExitUsage;
     }
     ShardedEngine engine(config.settings, workers_, config.limits);

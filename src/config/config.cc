@@ -204,7 +204,8 @@ class Reader {
   }
 
   void read_detect(const toml::table& t, std::string_view prefix, DetectSpec& d) {
-    check_keys(t, prefix, {"shift", "shift_factor", "shift_arl_records", "low_run", "low_run_quantile", "low_run_alpha"});
+    check_keys(t, prefix, {"shift", "shift_factor", "shift_arl_records", "low_run", "low_run_quantile", "low_run_alpha",
+                           "silence", "silence_multiple", "silence_min_gaps", "silence_window"});
     auto number = [&](std::string_view key, double lo, double hi, bool open_lo, bool open_hi, double& out,
                       std::string_view what) {
       const toml::node* n = t.get(key);
@@ -220,6 +221,20 @@ class Reader {
     number("shift_arl_records", 10, 1e6, false, false, d.shift_arl_records, "must be a number between 10 and 1000000");
     number("low_run_quantile", 0, 0.5, true, false, d.low_run_quantile, "must be a number in (0, 0.5]");
     number("low_run_alpha", 0, 0.5, true, true, d.low_run_alpha, "must be a number between 0 and 0.5");
+    if (auto* v = get<toml::value<bool>>(t, "silence", prefix, "true or false")) d.silence = v->get();
+    number("silence_multiple", 1, 1000, true, false, d.silence_multiple, "must be a number above 1 and at most 1000");
+    auto count = [&](std::string_view key, std::uint32_t& out) {
+      if (auto* v = get<toml::value<int64_t>>(t, key, prefix, "an integer")) {
+        if (v->get() < 2 || v->get() > 1000) fail(*v, join(prefix, key), "must be an integer from 2 to 1000");
+        else out = static_cast<std::uint32_t>(v->get());
+      }
+    };
+    count("silence_min_gaps", d.silence_min_gaps);
+    count("silence_window", d.silence_window);
+    if (d.silence_window < d.silence_min_gaps)
+      fail(t, join(prefix, "silence_window"),
+           fmt::format("({}) must be at least silence_min_gaps ({}): the median needs that many gaps",
+                       d.silence_window, d.silence_min_gaps));
   }
 
   void read_fdr(const toml::table& t, detect::FdrSpec& f) {
@@ -251,6 +266,34 @@ class Reader {
     wall("release_idle", 1, f.release_idle);
   }
 
+  void read_arrival(const toml::table& t, ArrivalSpec& a) {
+    check_keys(t, "arrival", {"late_tolerance", "duplicates", "max_held"});
+    if (auto* v = get<toml::value<std::string>>(t, "late_tolerance", "arrival", "a duration string like \"2d\"")) {
+      if (v->get() == "0" || v->get() == "0s") {
+        a.late_tolerance = Seconds{0};
+      } else {
+        auto d = parse_duration(v->get());
+        if (!d) fail(*v, "arrival.late_tolerance", d.error().message);
+        else if (d->count() > 366 * 86400) fail(*v, "arrival.late_tolerance", "must be at most 366d");
+        else a.late_tolerance = *d;
+      }
+    }
+    if (auto* v = get<toml::value<std::string>>(t, "duplicates", "arrival", "a string")) {
+      if (v->get() == "refuse") a.duplicates = DuplicatePolicy::refuse;
+      else if (v->get() == "replace") a.duplicates = DuplicatePolicy::replace;
+      else fail(*v, "arrival.duplicates", fmt::format("'{}' is not one of refuse, replace", v->get()));
+    }
+    if (auto* v = get<toml::value<int64_t>>(t, "max_held", "arrival", "an integer")) {
+      if (v->get() < 1 || v->get() > 100000000) fail(*v, "arrival.max_held", "must be from 1 to 100000000");
+      else a.max_held = static_cast<std::size_t>(v->get());
+    }
+    // Replacing needs a record that waits: with no tolerance each record is judged as it arrives.
+    if (a.duplicates == DuplicatePolicy::replace && a.late_tolerance.count() == 0)
+      fail(*t.get("duplicates"), "arrival.duplicates",
+           "\"replace\" needs arrival.late_tolerance above 0 (with none, a record is judged on arrival and "
+           "there is nothing left to replace)");
+  }
+
   void read_limits(const toml::table& t, EngineLimits& l) {
     check_keys(t, "limits", {"max_series"});
     if (auto* v = get<toml::value<int64_t>>(t, "max_series", "limits", "an integer")) {
@@ -276,8 +319,8 @@ Result<MonitorConfig> parse_config(std::string_view text, std::string_view sourc
   MonitorConfig config;
   config.source = std::string(source_name);
   Reader r(source_name);
-  r.check_keys(root, "", {"model", "alert", "detect", "fdr", "limits", "series", "source", "output", "checkpoint",
-                          "status", "intake"});
+  r.check_keys(root, "", {"model", "alert", "detect", "fdr", "limits", "arrival", "series", "source", "output",
+                          "checkpoint", "status", "intake"});
 
   auto table_at = [&](std::string_view key) -> const toml::table* {
     const toml::node* n = root.get(key);
@@ -290,6 +333,7 @@ Result<MonitorConfig> parse_config(std::string_view text, std::string_view sourc
   if (const toml::table* t = table_at("detect")) r.read_detect(*t, "detect", config.settings.defaults.detect);
   if (const toml::table* t = table_at("fdr")) r.read_fdr(*t, config.fdr);
   if (const toml::table* t = table_at("limits")) r.read_limits(*t, config.limits);
+  if (const toml::table* t = table_at("arrival")) r.read_arrival(*t, config.limits.arrival);
 
   if (const toml::node* n = root.get("series")) {
     const toml::array* arr = n->as_array();

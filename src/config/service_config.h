@@ -45,6 +45,11 @@ struct ServiceConfig {
   std::size_t max_connections = 64;          // [intake] open TCP connections over all listeners
   std::size_t max_datagram_bytes = 8192;     // [intake] longest datagram accepted
   std::uint32_t poll_ms = 200;               // [intake] how often followed files are checked
+  // [intake] clock: "data" (false, default) - held records are released and
+  // silence is found only as record times advance, so serving a file equals
+  // replaying it; "wall" (true) - also every poll_ms from the system clock,
+  // which catches a whole network going quiet but breaks that identity.
+  bool wall_clock = false;
 };
 
 }  // namespace tallyd

@@ -134,7 +134,13 @@ std::string read_service_tables(const toml::table& root, std::string_view source
     r.integer(*t, "port", "status", 0, 65535, out.status_port);
   }
   if (const toml::table* t = r.table(root, "intake")) {
-    r.keys(*t, "intake", {"max_line_bytes", "max_connections", "max_datagram_bytes", "poll_ms"});
+    r.keys(*t, "intake", {"max_line_bytes", "max_connections", "max_datagram_bytes", "poll_ms", "clock"});
+    std::string clock;
+    if (r.str(*t, "clock", "intake", clock)) {
+      if (clock == "data") out.wall_clock = false;
+      else if (clock == "wall") out.wall_clock = true;
+      else r.fail(*t->get("clock"), "intake.clock", fmt::format("'{}' is not one of data, wall", clock));
+    }
     r.integer(*t, "max_line_bytes", "intake", 64, 64 * 1024 * 1024, out.max_line_bytes);
     r.integer(*t, "max_connections", "intake", 1, 100000, out.max_connections);
     r.integer(*t, "max_datagram_bytes", "intake", 64, 65507, out.max_datagram_bytes);

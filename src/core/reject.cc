@@ -17,6 +17,8 @@ std::string_view reject_label(RejectReason reason) {
     case RejectReason::too_many_series: return "too_many_series";
     case RejectReason::read_error: return "read_error";
     case RejectReason::missing_exposure: return "missing_exposure";
+    case RejectReason::too_late: return "too_late";
+    case RejectReason::duplicate_time: return "duplicate_time";
   }
   return "unknown";
 }

@@ -25,10 +25,14 @@ enum class RejectReason : std::uint8_t {
   too_many_series,    // a new series id beyond the configured series limit
   read_error,         // the source failed to read (I/O error); what follows in it is lost
   missing_exposure,   // the exposure column is present but empty (JSON null): effort unknown, skipped
+  too_late,           // with a late tolerance (engine/arrival_hold.h): older than its series' newest record
+                      // by more than the tolerance, or not after a record of its series already judged
+  duplicate_time,     // with a late tolerance: same series and time as a record already judged, or as one
+                      // still held when arrival.duplicates = "refuse"
 };
 
 // Keep equal to the last enumerator above: counts are sized from it.
-inline constexpr RejectReason kLastRejectReason = RejectReason::missing_exposure;
+inline constexpr RejectReason kLastRejectReason = RejectReason::duplicate_time;
 inline constexpr std::size_t kRejectReasonCount = static_cast<std::size_t>(kLastRejectReason) + 1;
 
 // Stable snake_case label used in logs, JSON and metrics.

@@ -45,6 +45,26 @@ void Intake::refuse(const Rejection& r, SourceFigures& figures) {
   log_refusal(r);
 }
 
+// Same lines in the same order as replay_feeds (replay/replay.cc), so serving a
+// file and replaying it write the same alert log.
+void Intake::emit(const OfferResult& o, SourceFigures* figures) {
+  if (o.refused) {
+    if (figures) ++figures->rejected;
+    log_refusal(*o.refused);
+  }
+  for (const Released& rel : o.released) {
+    if (rel.result.rejection) {
+      // Counted against the source whose record released it (exact when nothing is held).
+      if (figures) ++figures->rejected;
+      log_refusal(*rel.result.rejection);
+    }
+    write_lines(output_lines(rel));
+  }
+  write_lines(output_lines(o.silence));
+}
+
+void Intake::tick(TimePoint now) { emit(engine_->tick(now), nullptr); }
+
 void Intake::offer(ParseOutcome& outcome, SourceFigures& figures, SteadyTime arrival) {
   last_line_ = std::max(last_line_, arrival);
   switch (outcome.kind()) {
@@ -53,13 +73,7 @@ void Intake::offer(ParseOutcome& outcome, SourceFigures& figures, SteadyTime arr
     case LineKind::record: break;
   }
   ++figures.records;
-  IngestResult r = engine_->ingest(outcome.record());
-  if (r.rejection) {
-    ++figures.rejected;
-    log_refusal(*r.rejection);
-  } else {
-    write_lines(output_lines(r));
-  }
+  emit(engine_->offer(outcome.record()), &figures);
   const std::chrono::duration<double> took = std::chrono::steady_clock::now() - arrival;
   latency_.add(took.count());
 }

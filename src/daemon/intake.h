@@ -63,6 +63,10 @@ class Intake {
   // limit), under the same rate limit as refusals.
   void warn_limited(const std::string& message);
 
+  // Moves the engine's data clock to `now` (the optional wall clock of
+  // [intake] clock = "wall"): writes what held records and silence it releases.
+  void tick(TimePoint now);
+
   Engine& engine() { return *engine_; }
   const Engine& engine() const { return *engine_; }
   // Swaps in another engine (a config reload); the old one is returned.
@@ -75,6 +79,9 @@ class Intake {
  private:
   void log_refusal(const Rejection& r) { warn_limited(r.describe()); }
   void write_lines(std::vector<OutputLine> lines);
+  // Writes and counts what one offer or tick released; `figures` is the
+  // source of the offered record (null for a tick).
+  void emit(const OfferResult& o, SourceFigures* figures);
 
   std::unique_ptr<Engine> engine_;
   AlertLog* log_;

@@ -194,6 +194,8 @@ Status Server::open_sources() {
 
 void Server::poll_files() {
   if (stopping_) return;
+  if (config_->service.wall_clock)
+    intake_->tick(std::chrono::time_point_cast<Seconds>(std::chrono::system_clock::now()));
   bool more = false;
   for (auto& g : follows_) {
     for (const std::string& path : expand(g->config.path)) {

@@ -42,6 +42,8 @@ std::string Server::status_json() const {
     rej[std::string(reject_label(static_cast<RejectReason>(i)))] = c.rejected.by_reason[i];
   j["rejected"] = rej;
   j["alerts"] = {{"high", c.alerts_high}, {"low", c.alerts_low}};
+  j["silence"] = {{"alerts", c.alerts_silence}, {"ended", c.silence_ends}, {"silent_now", e.silence().silent_count()}};
+  j["arrival"] = {{"held", e.held_count()}, {"duplicates_replaced", c.duplicates_replaced}};
   j["episodes"] = {{"open", e.episodes().open_count()},
                    {"opened", e.episodes().totals().opened},
                    {"closed", e.episodes().totals().closed}};
@@ -99,6 +101,10 @@ std::string Server::metrics_text() const {
   m += "# TYPE tallyd_alerts counter\n# HELP tallyd_alerts Alerts written, by direction.\n";
   m += fmt::format("tallyd_alerts_total{{direction=\"high\"}} {}\n", c.alerts_high);
   m += fmt::format("tallyd_alerts_total{{direction=\"low\"}} {}\n", c.alerts_low);
+  m += "# TYPE tallyd_held_records gauge\n# HELP tallyd_held_records Records held back for late arrivals ([arrival]).\n";
+  m += fmt::format("tallyd_held_records {}\n", e.held_count());
+  m += "# TYPE tallyd_silent_series gauge\n# HELP tallyd_silent_series Series reported silent and not heard from since.\n";
+  m += fmt::format("tallyd_silent_series {}\n", e.silence().silent_count());
   m += "# TYPE tallyd_episodes_open gauge\n# HELP tallyd_episodes_open Episodes open now (series and direction with an alert not yet followed by enough quiet records).\n";
   m += fmt::format("tallyd_episodes_open {}\n", e.episodes().open_count());
   m += "# TYPE tallyd_episodes_opened counter\n# HELP tallyd_episodes_opened Episodes opened.\n";

@@ -22,6 +22,14 @@ struct DetectSpec {
   bool low_run = false;             // run the low-count run detector
   double low_run_quantile = 0.1;    // predictive quantile that makes a record "low", in (0, 0.5]
   double low_run_alpha = 0.001;     // joint probability of the run that raises an alert, in (0, 0.5)
+  // Silence (detect/silence.h): a series' usual interval is the median of its
+  // last `silence_window` gaps between records; once it has at least
+  // `silence_min_gaps` gaps, no record for more than silence_multiple usual
+  // intervals raises one silence alert, and its next record a recovery line.
+  bool silence = false;                // watch the series for silence
+  double silence_multiple = 3.0;       // how many usual intervals without a record make it silent, in (1, 1000]
+  std::uint32_t silence_min_gaps = 5;  // gaps learned before the series is watched, in [2, 1000]
+  std::uint32_t silence_window = 15;   // most recent gaps the median is taken over, in [silence_min_gaps, 1000]
 };
 
 }  // namespace tallyd

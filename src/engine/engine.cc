@@ -7,7 +7,7 @@
 namespace tallyd {
 
 Engine::Engine(const SettingsTable& settings, EngineLimits limits, detect::FdrSpec fdr)
-    : settings_(&settings), limits_(limits), fdr_(fdr) {}
+    : settings_(&settings), limits_(limits), fdr_(fdr), hold_(limits.arrival, limits.max_series) {}
 
 void Engine::count_released(const std::vector<Alert>& alerts) {
   for (const Alert& a : alerts) {
@@ -154,6 +154,10 @@ IngestResult Engine::ingest(const Observation& obs) {
   // (model.alerted_weight), so an outbreak does not become its own baseline.
   const bool alerted = bound_alerted || r.alert || !r.detector_alerts.empty();
   model.learn(obs, alerted ? model.settings().model.alerted_weight : 1.0);
+  if (model.settings().detect.silence) {
+    r.recovery = silence_.report(obs, model.settings().detect);
+    if (r.recovery) ++counters_.silence_ends;
+  }
   track(r, obs, model.settings().alert.episode_close_records);
   return r;
 }

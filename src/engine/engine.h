@@ -19,6 +19,8 @@
 #include "detect/detectors.h"
 #include "detect/fdr.h"
 #include "detect/shift_cusum.h"
+#include "detect/silence.h"
+#include "engine/arrival_hold.h"
 #include "series/model_spec.h"
 #include "series/series_model.h"
 
@@ -34,6 +36,7 @@ inline constexpr double kDoubtFactor = 10;
 
 struct EngineLimits {
   std::size_t max_series = 100000;  // new series ids beyond this are rejected (too_many_series)
+  ArrivalSpec arrival;              // late and duplicate records, before ingest (engine/arrival_hold.h; [arrival])
 };
 
 struct IngestResult {
@@ -51,10 +54,29 @@ struct IngestResult {
   // back here from the first record of a later step (any series). See flush().
   std::vector<Alert> released;
   std::optional<Rejection> rejection;    // when rejected
+  // When accepted and its series had been reported silent: the recovery line
+  // (detect/silence.h), to be written before the alerts above.
+  std::optional<Alert> recovery;
   // Episodes this record closed (when judged): it completed a run of
   // alert.episode_close_records quiet records in their direction. Every alert
   // above carries its episode (Alert::episode); see alert/episode_tracker.h.
   std::vector<EpisodeEnd> closed;
+};
+
+// One record released by the arrival hold and what ingest made of it.
+struct Released {
+  std::vector<Alert> silence;  // silence alerts raised as the clock reached record.time; written first
+  Observation record;
+  IngestResult result;
+};
+
+// What offering one record (or moving the clock) set in motion, in the order
+// to write it out: each released record's silence alerts, then its own
+// lines; then `silence`.
+struct OfferResult {
+  std::optional<Rejection> refused;  // the arrival hold refused the offered record (counted)
+  std::vector<Released> released;
+  std::vector<Alert> silence;        // raised as the clock moved past the last released record
 };
 
 struct EngineCounters {
@@ -66,6 +88,9 @@ struct EngineCounters {
   std::uint64_t alerts_shift = 0;        // of which from the shift CUSUM
   std::uint64_t alerts_low_run = 0;      // of which from the low-count run detector
   std::uint64_t alerts_fdr = 0;          // of which bound alerts decided across series (Benjamini-Hochberg)
+  std::uint64_t alerts_silence = 0;      // of which silence alerts (counted as low)
+  std::uint64_t silence_ends = 0;        // recovery lines (not alerts)
+  std::uint64_t duplicates_replaced = 0; // held records replaced by a later duplicate (arrival.duplicates = "replace")
   RejectCounts rejected;
 };
 
@@ -75,6 +100,24 @@ class Engine {
   explicit Engine(const SettingsTable& settings, EngineLimits limits = {}, detect::FdrSpec fdr = {});
 
   IngestResult ingest(const Observation& obs);
+
+  // The data path of replay and serve (engine/engine_offer.cc): `obs` goes
+  // through the arrival hold, and every record it releases is judged by
+  // ingest() in release order, the clock first moved to the record's time so
+  // that silence alerts come out in time order. With no late tolerance and no
+  // silence this is exactly {ingest(obs)}. Counts the record as offered
+  // (counters().records) only when the hold refuses it or when ingest sees it.
+  OfferResult offer(const Observation& obs);
+  // Moves the data clock to `now` without a record (the service's optional
+  // wall clock): releases held records and raises silence alerts it passed.
+  OfferResult tick(TimePoint now);
+  // Releases every held record (end of a replay). Call before flush().
+  OfferResult drain();
+  // Moves the silence clock only (never backwards); returns silence alerts of
+  // series newly silent, counted. offer() and tick() call it.
+  std::vector<Alert> advance_clock(TimePoint now);
+  std::size_t held_count() const { return hold_.held_count(); }
+  const detect::SilenceWatch& silence() const { return silence_; }
 
   // Closes the open time step of the control across series and returns its
   // alerts (empty when that control is off). Replay calls it after the last
@@ -111,13 +154,12 @@ class Engine {
   // the same settings; on failure the reader carries the error and the engine
   // must be discarded. Series saved beyond limits.max_series are kept.
   void save_state(StateWriter& w) const;
-  // with_episodes = false reads state saved before episodes existed
-  // (checkpoint format 2): no episode open, numbering starts at 1.
-  void load_state(StateReader& r, bool with_episodes = true);
+  void load_state(StateReader& r);
 
  private:
   IngestResult reject(const Observation& obs, RejectReason reason, std::string detail);
   void count_released(const std::vector<Alert>& alerts);
+  void judge_released(std::vector<Observation>& ready, OfferResult& out);
   // Passes r's alerts, in output order, and then the judged record itself
   // through the episode tracker.
   void track(IngestResult& r, const Observation& obs, std::uint32_t close_after);
@@ -131,6 +173,8 @@ class Engine {
   detect::LimitTable limits_table_;  // CUSUM limits cached by value (a speed-up, not state)
   EngineCounters counters_;
   bool full_bounds_ = false;
+  ArrivalHold hold_;
+  detect::SilenceWatch silence_;
   EpisodeTracker episodes_;
 };
 

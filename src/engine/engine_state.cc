@@ -1,6 +1,6 @@
 // Saving and restoring the whole engine: counters, the cross-series
-// Benjamini-Hochberg gate, then each series in id order with its detector
-// state, then the episode tracker.
+// Benjamini-Hochberg gate, the arrival hold and the silence watch, then each
+// series in id order with its detector state, then the episode tracker.
 #include <fmt/format.h>
 
 #include "core/state_codec.h"
@@ -63,6 +63,7 @@ void Engine::save_state(StateWriter& w) const {
                           counters_.alerts_low})
     w.u64(v);
   for (std::uint64_t v : {counters_.alerts_shift, counters_.alerts_low_run, counters_.alerts_fdr}) w.u64(v);
+  for (std::uint64_t v : {counters_.alerts_silence, counters_.silence_ends, counters_.duplicates_replaced}) w.u64(v);
   w.u64(kRejectReasonCount);
   for (std::uint64_t v : counters_.rejected.by_reason) w.u64(v);
   w.newline();
@@ -72,6 +73,9 @@ void Engine::save_state(StateWriter& w) const {
   w.u64(fdr_state_.pending.size());
   w.newline();
   for (const detect::FdrCandidate& c : fdr_state_.pending) save_alert(w, c.alert);
+  // Held records were accepted: they are state like the models.
+  hold_.save_state(w);
+  silence_.save_state(w);
   w.tag("series_count");
   w.u64(series_.size());
   w.newline();
@@ -93,7 +97,7 @@ void Engine::save_state(StateWriter& w) const {
   episodes_.save_state(w);
 }
 
-void Engine::load_state(StateReader& r, bool with_episodes) {
+void Engine::load_state(StateReader& r) {
   r.expect("engine");
   counters_.records = r.u64();
   counters_.judged = r.u64();
@@ -103,6 +107,9 @@ void Engine::load_state(StateReader& r, bool with_episodes) {
   counters_.alerts_shift = r.u64();
   counters_.alerts_low_run = r.u64();
   counters_.alerts_fdr = r.u64();
+  counters_.alerts_silence = r.u64();
+  counters_.silence_ends = r.u64();
+  counters_.duplicates_replaced = r.u64();
   const std::uint64_t reasons = r.u64();
   if (!r.failed() && reasons != kRejectReasonCount)
     r.fail(fmt::format("{} rejection reasons saved, this build knows {}", reasons, kRejectReasonCount));
@@ -113,6 +120,10 @@ void Engine::load_state(StateReader& r, bool with_episodes) {
   fdr_state_.closed_through = load_optional(r);
   const std::uint64_t pending = r.u64();
   for (std::uint64_t i = 0; i < pending && !r.failed(); ++i) fdr_state_.pending.push_back(detect::FdrCandidate{load_alert(r)});
+  hold_ = ArrivalHold(limits_.arrival, limits_.max_series);
+  hold_.load_state(r);
+  silence_ = detect::SilenceWatch{};
+  silence_.load_state(r);
   r.expect("series_count");
   const std::uint64_t n = r.u64();
   series_.clear();
@@ -137,7 +148,7 @@ void Engine::load_state(StateReader& r, bool with_episodes) {
     series_.emplace(std::move(id), std::move(model));
   }
   episodes_ = EpisodeTracker{};
-  if (with_episodes && !r.failed()) episodes_.load_state(r);
+  if (!r.failed()) episodes_.load_state(r);
 }
 
 }  // namespace tallyd

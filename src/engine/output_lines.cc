@@ -18,6 +18,14 @@ std::vector<OutputLine> output_lines(const IngestResult& r) {
   return out;
 }
 
+std::vector<OutputLine> output_lines(const Released& rel) {
+  std::vector<OutputLine> out = output_lines(rel.silence);
+  if (rel.result.rejection) return out;
+  if (rel.result.recovery) add(*rel.result.recovery, out);
+  for (OutputLine& l : output_lines(rel.result)) out.push_back(std::move(l));
+  return out;
+}
+
 std::vector<OutputLine> output_lines(const std::vector<Alert>& alerts) {
   std::vector<OutputLine> out;
   for (const Alert& a : alerts) add(a, out);

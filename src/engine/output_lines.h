@@ -21,7 +21,13 @@ struct OutputLine {
 // detector alerts, then the episodes it closed. Empty for most records.
 std::vector<OutputLine> output_lines(const IngestResult& r);
 
-// The lines of alerts returned outside ingest (Engine::flush), in order.
+// The lines of one record released by Engine::offer, in order: the silence
+// alerts raised as the clock reached it, then (unless it was refused) its
+// recovery line (detect/silence.h) and output_lines(rel.result).
+std::vector<OutputLine> output_lines(const Released& rel);
+
+// The lines of alerts returned outside ingest (Engine::flush, the silence
+// alerts of OfferResult::silence), in order.
 std::vector<OutputLine> output_lines(const std::vector<Alert>& alerts);
 
 }  // namespace tallyd

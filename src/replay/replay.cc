@@ -15,6 +15,19 @@ std::uint64_t replay_feeds(FeedSet& feeds, Engine& engine, const ReplayOutputs& 
       written += l.alert ? 1 : 0;
     }
   };
+  // Late records and silence live in Engine::offer; this writes what comes out, in order.
+  auto emit = [&](const OfferResult& o) {
+    if (o.refused && out.on_rejection) out.on_rejection(*o.refused);
+    for (const Released& rel : o.released) {
+      if (rel.result.rejection) {
+        if (out.on_rejection) out.on_rejection(*rel.result.rejection);
+      } else if (out.on_record) {
+        out.on_record(rel.record, rel.result);
+      }
+      write(output_lines(rel));
+    }
+    write(output_lines(o.silence));
+  };
   FeedItem item;
   while (feeds.next(item)) {
     if (!item.is_record()) {
@@ -23,15 +36,10 @@ std::uint64_t replay_feeds(FeedSet& feeds, Engine& engine, const ReplayOutputs& 
       if (out.on_rejection) out.on_rejection(*bad);
       continue;
     }
-    const Observation& obs = item.record();
-    IngestResult r = engine.ingest(obs);
-    if (r.rejection) {
-      if (out.on_rejection) out.on_rejection(*r.rejection);
-      continue;
-    }
-    if (out.on_record) out.on_record(obs, r);
-    write(output_lines(r));
+    emit(engine.offer(item.record()));
   }
+  // Records still held for late arrivals are due once the feeds end.
+  emit(engine.drain());
   // The last time step of the control across series is complete once the feeds end.
   write(output_lines(engine.flush()));
   return written;

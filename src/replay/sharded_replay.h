@@ -8,8 +8,9 @@
 // why the results are; episode ids are per series). A
 // parser's refusals are reported as they are read, before the alerts of
 // the batch they fall in; the engine's own refusals in record order.
-// Not supported here: the control across series ([fdr]), which decides
-// per time step across all series, and the report traces.
+// Not supported here (the caller refuses them): the control across series
+// ([fdr]), the arrival hold and the silence watch, which keep one clock
+// over all series (Engine::offer), and the report traces.
 #pragma once
 
 #include <cstddef>

@@ -149,6 +149,73 @@ TEST_CASE("a missing config file is an error naming it", "[config]") {
   CHECK_THAT(r.error().message, Catch::StartsWith("/nonexistent/monitor.toml: cannot open"));
 }
 
+TEST_CASE("late, duplicate and silence keys", "[config]") {
+  const char* text = R"(
+[arrival]
+late_tolerance = "2d"
+duplicates = "replace"
+max_held = 5000
+
+[detect]
+silence = true
+silence_multiple = 4.5
+silence_min_gaps = 6
+silence_window = 21
+
+[intake]
+clock = "wall"
+
+[[series]]
+match = "sensor-*"
+detect.silence = false
+)";
+  auto r = parse_config(text, "monitor.toml");
+  REQUIRE(r.ok());
+  CHECK(r->limits.arrival.late_tolerance == Seconds{2 * 86400});
+  CHECK(r->limits.arrival.duplicates == DuplicatePolicy::replace);
+  CHECK(r->limits.arrival.max_held == 5000);
+  const DetectSpec& d = r->settings.defaults.detect;
+  CHECK(d.silence);
+  CHECK(d.silence_multiple == 4.5);
+  CHECK(d.silence_min_gaps == 6);
+  CHECK(d.silence_window == 21);
+  CHECK_FALSE(r->settings.for_series("sensor-1").detect.silence);
+  CHECK(r->service.wall_clock);
+
+  auto defaults = parse_config("", "empty.toml");
+  REQUIRE(defaults.ok());
+  CHECK(defaults->limits.arrival.late_tolerance == Seconds{0});
+  CHECK(defaults->limits.arrival.duplicates == DuplicatePolicy::refuse);
+  CHECK_FALSE(defaults->settings.defaults.detect.silence);
+  CHECK_FALSE(defaults->service.wall_clock);
+  auto zero = parse_config("[arrival]\nlate_tolerance = \"0s\"\n", "z.toml");
+  REQUIRE(zero.ok());
+  CHECK(zero->limits.arrival.late_tolerance == Seconds{0});
+
+  struct Bad {
+    const char* text;
+    const char* message;
+  };
+  for (const Bad& b : {
+           Bad{"[arrival]\nlate_tolerance = \"soon\"\n", "m.toml:2: arrival.late_tolerance: "},
+           Bad{"[arrival]\nlate_tolerance = \"400d\"\n", "m.toml:2: arrival.late_tolerance: must be at most 366d"},
+           Bad{"[arrival]\nduplicates = \"keep\"\n", "m.toml:2: arrival.duplicates: 'keep' is not one of refuse, replace"},
+           Bad{"[arrival]\nduplicates = \"replace\"\n", "m.toml:2: arrival.duplicates: \"replace\" needs"},
+           Bad{"[arrival]\nmax_held = 0\n", "m.toml:2: arrival.max_held: must be from 1"},
+           Bad{"[arrival]\nlate = \"1d\"\n", "m.toml:2: arrival.late: unknown key"},
+           Bad{"[detect]\nsilence_multiple = 1\n", "m.toml:2: detect.silence_multiple: must be a number above 1"},
+           Bad{"[detect]\nsilence_min_gaps = 1\n", "m.toml:2: detect.silence_min_gaps: must be an integer from 2"},
+           Bad{"[detect]\nsilence_min_gaps = 10\nsilence_window = 8\n",
+               "detect.silence_window: (8) must be at least silence_min_gaps (10)"},
+           Bad{"[intake]\nclock = \"sun\"\n", "m.toml:2: intake.clock: 'sun' is not one of data, wall"},
+       }) {
+    auto bad = parse_config(b.text, "m.toml");
+    INFO(b.text);
+    REQUIRE_FALSE(bad.ok());
+    CHECK_THAT(bad.error().message, Catch::Contains(b.message));
+  }
+}
+
 TEST_CASE("episode and step-release keys: defaults, overrides, errors", "[config]") {
   auto empty = parse_config("", "empty.toml");
   REQUIRE(empty.ok());

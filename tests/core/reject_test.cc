@@ -21,7 +21,7 @@ TEST_CASE("every refusal reason has its own snake_case label", "[core][reject]")
   CHECK(reject_label(RejectReason::zero_exposure) == "zero_exposure");
   CHECK(reject_label(RejectReason::read_error) == "read_error");
   // The last reason is the last index the counts have room for.
-  CHECK(kRejectReasonCount == 13);
+  CHECK(kRejectReasonCount == 15);
 }
 
 TEST_CASE("a refusal describes itself with its place", "[core][reject]") {
