@@ -3,9 +3,15 @@
 // Engine::ingest over it, once per bounds method.
 //
 //   build/replay_bench [--series N] [--days D] [--window W] [--draws K] [--refit-every R]
-//                      [--workers T] [--method quadrature|simulate|both]
+//                      [--workers T] [--method quadrature|simulate|both] [--screen off|on|both]
+//                      [--cadences 2,4,7] [--doubt off|on|both] [--annual-harmonics H]
 //
-// Prints one row per method: records, seconds, records/s, judged, alerts.
+// Prints one row per method and screen setting: records, seconds,
+// records/s, judged, alerts, and how many records' verdicts (no alert, high,
+// low) differ from the first row of that method (screen off), which is the
+// baseline of the ratio. With --cadences, the quadrature feed is also run at
+// each refit cadence (with model.refit_on_doubt off, on, or both) and
+// compared record by record with refit every record.
 // With --workers T > 1 the series are sharded over T threads
 // (engine/sharded_engine.h), fed in batches of one day of records; the row
 // for T = 1 (plain Engine, one record at a time) is printed first in the
@@ -16,6 +22,7 @@
 #include <cstdio>
 #include <cstdlib>
 #include <cstring>
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -34,7 +41,11 @@ struct Args {
   int draws = 10000;
   std::size_t refit_every = 1;
   int workers = 1;
+  int annual_harmonics = 1;  // coefficients: intercept, trend, 2 per annual harmonic, 2 weekly
   std::string method = "both";
+  std::string screen = "off";
+  std::string doubt = "both";
+  std::vector<std::size_t> cadences;
 };
 
 Args parse_args(int argc, char** argv) {
@@ -49,6 +60,35 @@ Args parse_args(int argc, char** argv) {
       }
       continue;
     }
+    if (k == "--screen") {
+      a.screen = argv[i + 1];
+      if (a.screen != "off" && a.screen != "on" && a.screen != "both") {
+        std::fprintf(stderr, "--screen must be off, on or both\n");
+        std::exit(1);
+      }
+      continue;
+    }
+    if (k == "--doubt") {
+      a.doubt = argv[i + 1];
+      if (a.doubt != "off" && a.doubt != "on" && a.doubt != "both") {
+        std::fprintf(stderr, "--doubt must be off, on or both\n");
+        std::exit(1);
+      }
+      continue;
+    }
+    if (k == "--cadences") {
+      for (const char* c = argv[i + 1]; *c != 0;) {
+        char* end = nullptr;
+        const long v = std::strtol(c, &end, 10);
+        if (end == c || v < 1) {
+          std::fprintf(stderr, "--cadences wants a comma-separated list of positive integers\n");
+          std::exit(1);
+        }
+        a.cadences.push_back(static_cast<std::size_t>(v));
+        c = *end == ',' ? end + 1 : end;
+      }
+      continue;
+    }
     const long v = std::strtol(argv[i + 1], nullptr, 10);
     if (k == "--series") a.series = static_cast<int>(v);
     else if (k == "--days") a.days = static_cast<int>(v);
@@ -56,6 +96,7 @@ Args parse_args(int argc, char** argv) {
     else if (k == "--draws") a.draws = static_cast<int>(v);
     else if (k == "--workers") a.workers = static_cast<int>(v);
     else if (k == "--refit-every") a.refit_every = static_cast<std::size_t>(v);
+    else if (k == "--annual-harmonics") a.annual_harmonics = static_cast<int>(v);
     else {
       std::fprintf(stderr, "unknown option %s\n", argv[i]);
       std::exit(1);
@@ -87,32 +128,49 @@ std::vector<Observation> make_feed(const Args& a) {
   return feed;
 }
 
-SettingsTable bench_settings(const Args& a, bounds::Method method) {
+SettingsTable bench_settings(const Args& a, bounds::Method method, bool screen, std::size_t refit_every,
+                             bool doubt = false) {
   SettingsTable t;
   ModelSpec& m = t.defaults.model;
   m.family = glm::Family::quasipoisson;
   m.link = glm::Link::log;
   m.trend = true;
-  m.seasons = {Season{Seconds{31557600}, 1}, Season{Seconds{7 * 86400}, 1}};
+  m.seasons = {Season{Seconds{31557600}, a.annual_harmonics}, Season{Seconds{7 * 86400}, 1}};
   m.window = Window{std::nullopt, a.window};
   m.min_history = 30;
-  m.refit_every = a.refit_every;
+  m.refit_every = refit_every;
+  m.refit_on_doubt = doubt;
   t.defaults.alert.method = method;
   t.defaults.alert.draws = a.draws;
   t.defaults.alert.alpha = 0.001;
+  t.defaults.alert.screen = screen;
   return t;
 }
 
 struct Row {
   double seconds;
   EngineCounters counters;
+  std::vector<signed char> verdicts;  // per record: 0 none, 1 high, -1 low (bound alerts), 2 not judged
 };
 
 Row run_single(const std::vector<Observation>& feed, const SettingsTable& settings) {
   Engine engine(settings);
+  Row row{0, {}, {}};
+  row.verdicts.resize(feed.size());
   const auto t0 = std::chrono::steady_clock::now();
-  for (const Observation& o : feed) engine.ingest(o);
-  return {std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count(), engine.counters()};
+  for (std::size_t i = 0; i < feed.size(); ++i) {
+    const IngestResult r = engine.ingest(feed[i]);
+    row.verdicts[i] = !r.prediction ? 2 : !r.alert ? 0 : r.alert->side == AlertSide::high ? 1 : -1;
+  }
+  row.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+  row.counters = engine.counters();
+  return row;
+}
+
+std::size_t differing(const Row& a, const Row& b) {
+  std::size_t n = 0;
+  for (std::size_t i = 0; i < a.verdicts.size() && i < b.verdicts.size(); ++i) n += a.verdicts[i] != b.verdicts[i];
+  return n;
 }
 
 Row run_sharded(const std::vector<Observation>& feed, const SettingsTable& settings, int workers, int series) {
@@ -127,13 +185,18 @@ Row run_sharded(const std::vector<Observation>& feed, const SettingsTable& setti
     engine.ingest_batch(batch);
     seconds += std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
   }
-  return {seconds, engine.counters()};
+  return {seconds, engine.counters(), {}};
 }
 
-void print_row(const char* method, int workers, std::size_t records, const Row& r) {
-  std::printf("%-11s %7d %10zu %10.2f %12.0f %10llu %8llu\n", method, workers, records, r.seconds,
-              static_cast<double>(records) / r.seconds, static_cast<unsigned long long>(r.counters.judged),
-              static_cast<unsigned long long>(r.counters.alerts_high + r.counters.alerts_low));
+// `base` is the first row of the method in this run (refit every record,
+// screen off): the ratio and the verdict differences are against it.
+void print_row(const char* method, const char* screen, std::size_t every, int workers, std::size_t records,
+               const Row& r, const Row& base) {
+  const std::string diff = r.verdicts.empty() ? std::string("-") : std::to_string(differing(r, base));
+  std::printf("%-11s %6s %5zu %7d %10zu %10.2f %12.0f %7.2f %10llu %8llu %8s\n", method, screen, every, workers,
+              records, r.seconds, static_cast<double>(records) / r.seconds, base.seconds / r.seconds,
+              static_cast<unsigned long long>(r.counters.judged),
+              static_cast<unsigned long long>(r.counters.alerts_high + r.counters.alerts_low), diff.c_str());
 }
 
 }  // namespace
@@ -141,24 +204,45 @@ void print_row(const char* method, int workers, std::size_t records, const Row& 
 int main(int argc, char** argv) {
   const Args a = parse_args(argc, argv);
   const std::vector<Observation> feed = make_feed(a);
-  std::printf("feed: %d series x %d days = %zu records; window %zu records; refit every %zu; draws %d\n", a.series,
-              a.days, feed.size(), a.window, a.refit_every, a.draws);
-  std::printf("%-11s %7s %10s %10s %12s %10s %8s\n", "method", "threads", "records", "seconds", "records/s", "judged",
-              "alerts");
+  std::printf("feed: %d series x %d days = %zu records; window %zu records; %d coefficients; draws %d\n", a.series,
+              a.days, feed.size(), a.window, 4 + 2 * a.annual_harmonics, a.draws);
+  std::printf("%-11s %6s %5s %7s %10s %10s %12s %7s %10s %8s %8s\n", "method", "screen", "refit", "threads",
+              "records", "seconds", "records/s", "ratio", "judged", "alerts", "differ");
   for (bounds::Method method : {bounds::Method::quadrature, bounds::Method::simulate}) {
     if (a.method != "both" && bounds::parse_method(a.method) != method) continue;
-    const SettingsTable settings = bench_settings(a, method);
     const std::string name(bounds::to_string(method));
-    const Row one = run_single(feed, settings);
-    print_row(name.c_str(), 1, feed.size(), one);
-    if (a.workers > 1) {
-      const Row many = run_sharded(feed, settings, a.workers, a.series);
-      print_row(name.c_str(), a.workers, feed.size(), many);
-      std::printf("speed-up %d threads / 1: %.2fx; alerts %s\n", a.workers, one.seconds / many.seconds,
-                  one.counters.alerts_high == many.counters.alerts_high &&
-                          one.counters.alerts_low == many.counters.alerts_low
-                      ? "identical counts"
-                      : "DIFFER");
+    std::vector<bool> screens;
+    if (a.screen != "on") screens.push_back(false);
+    if (a.screen != "off") screens.push_back(true);
+    std::optional<Row> base;
+    for (bool screen : screens) {
+      const SettingsTable settings = bench_settings(a, method, screen, a.refit_every);
+      const Row one = run_single(feed, settings);
+      if (!base) base = one;
+      print_row(name.c_str(), screen ? "on" : "off", a.refit_every, 1, feed.size(), one, *base);
+      if (a.workers > 1) {
+        const Row many = run_sharded(feed, settings, a.workers, a.series);
+        print_row(name.c_str(), screen ? "on" : "off", a.refit_every, a.workers, feed.size(), many, *base);
+        std::printf("speed-up %d threads / 1: %.2fx; alerts %s\n", a.workers, one.seconds / many.seconds,
+                    one.counters.alerts_high == many.counters.alerts_high &&
+                            one.counters.alerts_low == many.counters.alerts_low
+                        ? "identical counts"
+                        : "DIFFER");
+      }
+    }
+    if (method != bounds::Method::quadrature) continue;
+    for (std::size_t every : a.cadences) {
+      for (bool doubt : {false, true}) {
+        if ((doubt && a.doubt == "off") || (!doubt && a.doubt == "on")) continue;
+        const SettingsTable settings = bench_settings(a, method, screens.back(), every, doubt);
+        const Row r = run_single(feed, settings);
+        print_row(name.c_str(), screens.back() ? "on" : "off", every, 1, feed.size(), r, *base);
+        std::printf("  refit every %zu%s: %zu of %llu judged records (%.4f%%) differ from refit every %zu\n", every,
+                    doubt ? " on doubt" : "", differing(r, *base),
+                    static_cast<unsigned long long>(base->counters.judged),
+                    100.0 * static_cast<double>(differing(r, *base)) / static_cast<double>(base->counters.judged),
+                    a.refit_every);
+      }
     }
   }
   return 0;

@@ -6,6 +6,7 @@
 
 #include "bounds/count_noise.h"
 #include "bounds/quadrature.h"
+#include "bounds/screen.h"
 #include "bounds/simulate.h"
 
 namespace tallyd::bounds {
@@ -42,7 +43,22 @@ Bounds evaluate(const Predictor& predictor, const CountNoise& noise, std::int64_
   // Counts beyond 2^53 are judged as 2^53, where the distribution is censored.
   observed = std::min(observed, kMaxCount);
 
-  if (options.method == Method::simulate && rng != nullptr) {
+  const bool simulate = options.method == Method::simulate && rng != nullptr;
+  if (options.screen) {
+    const ScreenOutcome s = screen_record(p, noise, observed, options.quadrature_nodes, alpha,
+                                          simulate ? std::max(options.draws, 1) : 0);
+    if (s.settled) {
+      Bounds b;
+      b.screened = true;
+      b.expected = s.expected;
+      b.lower = 0;
+      b.upper = std::numeric_limits<std::int64_t>::max();
+      b.p_high = s.p_high_floor;
+      b.p_low = s.p_low_floor;
+      return b;
+    }
+  }
+  if (simulate) {
     return simulate_bounds(p, noise, observed, options.draws, alpha, *rng);
   }
   return quadrature_bounds(p, noise, observed, options.quadrature_nodes, alpha);

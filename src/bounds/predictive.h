@@ -86,6 +86,10 @@ struct Options {
   int quadrature_nodes = 48;  // quadrature: Gauss-Hermite nodes, clamped to [1, 256]; 1 when eta_variance == 0.
                               // Used while rho <= 1.5; a grid rule otherwise. See "Accuracy of the quadrature" above.
   double alpha = 0.001;       // one-sided tail probability for each bound; clamped to [1e-300, 0.5]
+  bool screen = false;        // settle records that provably raise no alert before the full evaluation
+                              // (bounds/screen.h): never changes a quadrature verdict; changes a simulate
+                              // verdict with probability <= 2e-12 per record. Settled records come back
+                              // with `screened` set and without integer bounds (see Bounds).
 };
 
 struct Bounds {
@@ -94,6 +98,12 @@ struct Bounds {
   std::int64_t upper = 0;   // smallest u >= 0 with P(Y > u) <= alpha: a count above it is unusually high
   double p_high = 1;        // P(Y >= observed)
   double p_low = 1;         // P(Y <= observed)
+  // Set when Options::screen settled the record ("no alert" on both sides)
+  // without the full evaluation: lower = 0 and upper = INT64_MAX were not
+  // computed, p_high and p_low are lower bounds on the p-values (both above
+  // alpha), and expected is the quadrature mixture's mean (also for
+  // simulate). Ask again with screen off when the real values are needed.
+  bool screened = false;
 };
 
 // Evaluates the predictive distribution at `observed`.

@@ -24,36 +24,12 @@
 
 #include <cstdint>
 
+#include "bounds/mixture.h"
 #include "bounds/predictive.h"
 
 namespace tallyd::bounds {
-
-// Gauss-Hermite is kept while rho = sd(eta*) / (noise sd on the eta scale)
-// is at most this: 48 nodes are within 1e-10 relative there (measured
-// against the grid rule and Boost.Math's adaptive Gauss-Kronrod; see
-// tests/bounds/quadrature_test.cc).
-inline constexpr double kHermiteMaxRho = 1.5;
-// Grid rule: +-kGridHalfWidth sd(eta*) (Gaussian mass outside ~3.6e-33),
-// kGridStepsPerWidth steps per min(sd(eta*), noise width), at most
-// kMaxGridNodes nodes (reached only when rho > ~227, e.g. a mean of 2.6e6
-// with eta_variance 0.02; the step is then wider than planned and the
-// rule's error is no longer negligible: see predictive.h).
-inline constexpr double kGridHalfWidth = 12;
-inline constexpr double kGridStepsPerWidth = 3;
-inline constexpr int kMaxGridNodes = 16384;
-
-struct QuadratureRule {
-  bool grid = false;       // trapezoid grid instead of Gauss-Hermite
-  int hermite_nodes = 1;   // Gauss-Hermite nodes when !grid
-  int grid_nodes = 0;      // grid nodes when grid
-  bool grid_capped = false;  // the grid wanted more than kMaxGridNodes nodes
-  double rho = 0;          // sd(eta*) over the narrowest relevant noise width
-};
-
-// The rule quadrature_bounds uses for these inputs (same preconditions).
-// The narrowest relevant noise width is taken at eta_mean -+ z_alpha sd
-// (for the log link Poisson, 1/sqrt(mean) there), not at the observed count.
-QuadratureRule choose_rule(const Predictor& predictor, const CountNoise& noise, int nodes, double alpha);
+// The rule choice (choose_rule, QuadratureRule and its constants) lives in
+// bounds/mixture.h, included here.
 
 // Preconditions (checked by evaluate): eta_mean and eta_variance finite,
 // eta_variance >= 0, alpha in [1e-300, 0.5], observed <= 2^53. nodes is

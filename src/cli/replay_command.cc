@@ -11,6 +11,7 @@
 #include "config/config.h"
 #include "feed/feed_merge.h"
 #include "replay/replay.h"
+#include "replay/sharded_replay.h"
 #include "report/html_report.h"
 #include "report/output_file.h"
 #include "report/svg_plot.h"
@@ -42,6 +43,9 @@ class ReplayCommand final : public Command {
     sub.add_option("--plot-series", plot_series_, "Series whose plot is written with --plot-file");
     sub.add_option("--plot-file", plot_path_,
                    "Write the plot of --plot-series as a standalone SVG (e.g. for rsvg-convert -o plot.png)");
+    sub.add_option("--workers", workers_,
+                   "Judge the series on this many threads (sharded by series id; the alerts are the same)")
+        ->check(CLI::Range(1, 64));
     sub.footer(
         "Each record is judged against its series' model fitted on earlier records only, then learned.\n"
         "Exit status: 0 done (refused records are counted, not fatal), 1 usage or config error,\n"
@@ -111,7 +115,9 @@ class ReplayCommand final : public Command {
     const bool want_traces = !report_path_.empty() || !plot_path_.empty();
     if (want_traces) out.on_record = [&](const Observation& o, const IngestResult& r) { traces.add(o, r); };
 
+    if (workers_ > 1) return run_sharded(config, *feeds, out, alerts_file, want_traces);
     Engine engine(config.settings, config.limits, config.fdr);
+    engine.keep_full_bounds(want_traces);  // traces show every record's bounds
     replay_feeds(*feeds, engine, out);
     std::cout.flush();
     if (alerts_file.is_open()) {
@@ -128,6 +134,37 @@ class ReplayCommand final : public Command {
   }
 
  private:
+  int run_sharded(const MonitorConfig& config, FeedSet& feeds, const ReplayOutputs& out, std::ofstream& alerts_file,
+                  bool want_traces) {
+    // The shards call ingest directly: the arrival hold and the silence
+    // watch (Engine::offer), which keep one clock over all series, are left out.
+    bool silence = config.settings.defaults.detect.silence;
+    for (const SettingsRule& rule : config.settings.rules) silence = silence || rule.settings.detect.silence;
+    const ArrivalSpec& arrival = config.limits.arrival;
+    const char* unsupported = config.fdr.enabled ? "the control across series ([fdr] enabled)"
+                              : want_traces      ? "--report or --plot-file"
+                              : silence          ? "silence watching ([detect] silence)"
+                              : arrival.late_tolerance.count() != 0 || arrival.duplicates != DuplicatePolicy::refuse
+                                  ? "late or duplicate records ([arrival])"
+                                  : nullptr;
+    if (unsupported != nullptr) {
+      spdlog::error("--workers above 1 does not support {}", unsupported);
+      return kExitUsage;
+    }
+    ShardedEngine engine(config.settings, workers_, config.limits);
+    replay_feeds_sharded(feeds, engine, out);
+    std::cout.flush();
+    if (alerts_file.is_open()) {
+      alerts_file.flush();
+      if (!alerts_file) {
+        spdlog::error("{}: writing the alerts file failed", alerts_path_);
+        return kExitData;
+      }
+    }
+    if (!quiet_) spdlog::info("replay: {}", describe_counters(engine.counters(), engine.series_count()));
+    return kExitOk;
+  }
+
   int write_pictures(std::vector<report::SeriesTrace> series, std::vector<tune::Episode> episodes,
                      const std::string& summary) {
     if (!plot_path_.empty()) {
@@ -170,6 +207,7 @@ class ReplayCommand final : public Command {
   std::string plot_path_;
   std::size_t max_line_bytes_ = 64 * 1024;
   bool quiet_ = false;
+  int workers_ = 1;
 };
 
 }  // namespace

@@ -199,6 +199,7 @@ class TuneCommand final : public Command {
       return kExitData;
     }
     engine_ = std::make_unique<Engine>(table, MonitorConfig{}.limits);
+    engine_->keep_full_bounds(true);  // scoring needs every record's p-values
     replay_feeds(*feeds, *engine_, out);
     if (summarize) summary_ = describe_counters(engine_->counters(), engine_->series_count());
     if (keep) *keep = engine_.get();

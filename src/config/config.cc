@@ -50,7 +50,7 @@ class Reader {
   }
 
   void read_model(const toml::table& t, std::string_view prefix, ModelSpec& m) {
-    check_keys(t, prefix, {"family", "link", "trend", "covariates", "seasons", "window", "min_history", "refit_every",
+    check_keys(t, prefix, {"family", "link", "trend", "covariates", "seasons", "window", "min_history", "refit_every", "refit_on_doubt",
                            "reweight", "reweight_threshold", "alerted_weight", "guard_records"});
     if (auto* v = get<toml::value<int64_t>>(t, "guard_records", prefix, "an integer")) {
       if (v->get() < 0 || v->get() > 1000) fail(*v, join(prefix, "guard_records"), "must be between 0 and 1000");
@@ -125,6 +125,7 @@ class Reader {
       if (v->get() < 1) fail(*v, join(prefix, "min_history"), "must be at least 1");
       else m.min_history = static_cast<std::size_t>(v->get());
     }
+    if (auto* v = get<toml::value<bool>>(t, "refit_on_doubt", prefix, "true or false")) m.refit_on_doubt = v->get();
     if (auto* v = get<toml::value<int64_t>>(t, "refit_every", prefix, "an integer")) {
       if (v->get() < 1) fail(*v, join(prefix, "refit_every"), "must be at least 1");
       else m.refit_every = static_cast<std::size_t>(v->get());
@@ -168,7 +169,8 @@ class Reader {
   }
 
   void read_alert(const toml::table& t, std::string_view prefix, AlertSpec& a) {
-    check_keys(t, prefix, {"alpha", "direction", "method", "draws", "seed", "quadrature_nodes", "episode_close_records"});
+    check_keys(t, prefix, {"alpha", "direction", "method", "draws", "seed", "quadrature_nodes", "screen",
+                           "episode_close_records"});
     if (const toml::node* n = t.get("alpha")) {
       std::optional<double> v = n->value<double>();
       if (!v || !(*v > 0 && *v < 0.5)) fail(*n, join(prefix, "alpha"), "must be a number between 0 and 0.5");
@@ -194,6 +196,7 @@ class Reader {
       if (v->get() < 0) fail(*v, join(prefix, "seed"), "must be non-negative");
       else a.seed = static_cast<std::uint64_t>(v->get());
     }
+    if (auto* v = get<toml::value<bool>>(t, "screen", prefix, "true or false")) a.screen = v->get();
     if (auto* v = get<toml::value<int64_t>>(t, "episode_close_records", prefix, "an integer")) {
       if (v->get() < 1 || v->get() > 10000) fail(*v, join(prefix, "episode_close_records"), "must be between 1 and 10000");
       else a.episode_close_records = static_cast<std::uint32_t>(v->get());

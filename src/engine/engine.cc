@@ -94,7 +94,24 @@ IngestResult Engine::ingest(const Observation& obs) {
   if (model.ready()) {
     // Judge before learning: the count must not widen its own interval.
     r.kind = IngestResult::Kind::judged;
-    r.prediction = model.predict(obs);
+    const SeriesSettings& s = model.settings();
+    // The screen leaves out integer bounds and exact p-values; the control
+    // across series needs every p-value, and a simulated shift CUSUM needs
+    // the draws' mean, so neither may use it.
+    const bool screen = !full_bounds_ && !fdr_.enabled &&
+                        !(s.alert.method == bounds::Method::simulate && s.detect.shift);
+    r.prediction = model.predict(obs, screen);
+    if (s.model.refit_on_doubt && model.records_since_refit() > 0) {
+      // The fit lags the newest records (refit_every > 1). Keep its verdict
+      // only for a record far inside its bounds; otherwise catch up first,
+      // so every record near alpha is judged by a fit of all earlier records.
+      const bounds::Bounds& b = r.prediction->bounds;
+      const double clear = kDoubtFactor * s.alert.alpha;
+      if (!(b.p_high > clear && b.p_low > clear)) {
+        model.refit();
+        r.prediction = model.predict(obs, screen);
+      }
+    }
     r.alert = judge_count(obs, r.prediction->bounds, model.settings().alert);
     ++counters_.judged;
     if (fdr_.enabled) {
@@ -108,9 +125,18 @@ IngestResult Engine::ingest(const Observation& obs) {
       count_released(r.released);
     }
     if (r.alert) ++(r.alert->side == AlertSide::high ? counters_.alerts_high : counters_.alerts_low);
-    const SeriesSettings& s = model.settings();
     if (s.detect.shift || s.detect.low_run) {
-      r.detector_alerts = detect::run_detectors(detectors_[obs.series], obs, *r.prediction, s, limits_table_);
+      detect::DetectorState& state = detectors_[obs.series];
+      const detect::DetectorState before = state;
+      r.detector_alerts = detect::run_detectors(state, obs, *r.prediction, s, limits_table_);
+      if (!r.detector_alerts.empty() && r.prediction->bounds.screened) {
+        // A detector alert shows the record's bounds: compute them and run the
+        // detectors again from the same state (they read only the mean and
+        // the noise, which the screen leaves as they are, so they decide the same).
+        state = before;
+        r.prediction = model.predict(obs, false);
+        r.detector_alerts = detect::run_detectors(state, obs, *r.prediction, s, limits_table_);
+      }
       for (const Alert& a : r.detector_alerts) {
         ++(a.side == AlertSide::high ? counters_.alerts_high : counters_.alerts_low);
         ++(a.detector == detect::kShiftLabel ? counters_.alerts_shift : counters_.alerts_low_run);

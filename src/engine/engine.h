@@ -29,6 +29,11 @@ namespace tallyd {
 class StateWriter;
 class StateReader;
 
+// model.refit_on_doubt: a record judged by a fit older than its newest
+// records is judged again after a refit unless both its p-values exceed
+// this multiple of alpha (or the screen's lower bounds on them do).
+inline constexpr double kDoubtFactor = 10;
+
 struct EngineLimits {
   std::size_t max_series = 100000;  // new series ids beyond this are rejected (too_many_series)
   ArrivalSpec arrival;              // late and duplicate records, before ingest (engine/arrival_hold.h; [arrival])
@@ -126,6 +131,12 @@ class Engine {
   // The state of the control across series (part of a checkpoint).
   const detect::FdrState& fdr_state() const { return fdr_state_; }
 
+  // Every judged record's prediction then carries its full bounds and
+  // p-values (for reports, traces and tuning), whatever alert.screen says.
+  // Off by default: with alert.screen on, records that provably raise no
+  // alert may come back with prediction->bounds.screened set.
+  void keep_full_bounds(bool on) { full_bounds_ = on; }
+
   // Counts a refusal made before the engine (by a parser) so one place holds all counts.
   void count_rejection(RejectReason reason) { counters_.rejected.add(reason); }
 
@@ -161,6 +172,7 @@ class Engine {
   detect::FdrState fdr_state_;
   detect::LimitTable limits_table_;  // CUSUM limits cached by value (a speed-up, not state)
   EngineCounters counters_;
+  bool full_bounds_ = false;
   ArrivalHold hold_;
   detect::SilenceWatch silence_;
   EpisodeTracker episodes_;

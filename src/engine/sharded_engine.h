@@ -39,6 +39,9 @@ class ShardedEngine {
   // time order across batches, as for Engine::ingest.
   std::vector<IngestResult> ingest_batch(const std::vector<Observation>& batch);
 
+  // Counts a refusal made before the engine (by a parser), as Engine::count_rejection.
+  void count_rejection(RejectReason reason) { shards_.front()->count_rejection(reason); }
+
   int workers() const { return static_cast<int>(shards_.size()); }
   // Which worker owns `series`: stable_hash(series) mod workers.
   std::size_t shard_of(std::string_view series) const;

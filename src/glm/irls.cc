@@ -8,6 +8,15 @@ namespace {
 
 // mu = g^{-1}(eta); false as soon as one eta gives no usable mean.
 bool means_from(Link link, const Eigen::VectorXd& eta, Eigen::VectorXd& mu) {
+  if (link == Link::log) {
+    // valid_eta and link_inv, with one exp instead of two (the same values).
+    for (Eigen::Index i = 0; i < eta.size(); ++i) {
+      const double m = std::exp(eta(i));
+      if (!std::isfinite(eta(i)) || !(m > 0)) return false;
+      mu(i) = m;
+    }
+    return true;
+  }
   for (Eigen::Index i = 0; i < eta.size(); ++i) {
     if (!valid_eta(link, eta(i))) return false;
     mu(i) = link_inv(link, eta(i));
@@ -128,9 +137,13 @@ IrlsOutcome run_irls(const Eigen::MatrixXd& X, const Eigen::VectorXd& y,
   out.stop = IrlsStop::iteration_limit;
   for (int iter = 1; iter <= settings.max_iterations; ++iter) {
     out.iterations = iter;
-    sqrt_working_weights(link, dist, eta, mu, w, sqrt_w);
     for (Eigen::Index i = 0; i < n; ++i) {
-      z(i) = eta(i) - offset(i) + (y(i) - mu(i)) / mu_eta(link, eta(i));
+      // sqrt_working_weights and the working response share d mu / d eta
+      // (the same arithmetic as calling it, with one link derivative per record).
+      const double d = mu_eta(link, eta(i));
+      sqrt_w(i) = std::sqrt(w(i) * d * d / dist.variance(mu(i)));
+      if (!std::isfinite(sqrt_w(i))) sqrt_w(i) = 0;
+      z(i) = eta(i) - offset(i) + (y(i) - mu(i)) / d;
       // A mean so small that mu_eta underflows carries no information; R's
       // glm.fit drops such records from the step ("good" cases) as well.
       if (!std::isfinite(z(i))) {

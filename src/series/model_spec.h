@@ -39,6 +39,10 @@ struct ModelSpec {
   Window window{Seconds{static_cast<std::int64_t>(2 * kDaysPerYear * kSecondsPerDay)}, 1000};
   std::size_t min_history = 20;          // records before any judgement (raised to #coefficients + 2)
   std::size_t refit_every = 1;           // refit after this many new records (1 = every record)
+  bool refit_on_doubt = false;           // with refit_every > 1: refit before judging a record whose
+                                         // p-values under the older fit are not both above
+                                         // kDoubtFactor * alpha (engine/engine.h), so only records
+                                         // far inside their bounds are judged by a fit a few records old
   // Outbreak-resistant training (docs/detection.md). After each fit, records
   // whose standardized Anscombe residual exceeds reweight_threshold get
   // prior weight proportional to residual^-2 and the model is refitted once
@@ -60,6 +64,7 @@ struct AlertSpec {
   int draws = 10000;                    // simulate: draws per record
   int quadrature_nodes = 48;            // quadrature: Gauss-Hermite nodes
   std::uint64_t seed = 1;               // simulate: base seed of the reproducible draws
+  bool screen = false;                  // settle unremarkable records before the full bounds (bounds::Options::screen)
   // Judged records in a row without an alert in an open episode's direction
   // that close that episode (alert/episode_tracker.h); 1-10000.
   std::uint32_t episode_close_records = 3;

@@ -46,7 +46,7 @@ double SeriesModel::row_for(TimePoint time, double exposure, const double* covar
   return design_row(settings_->model, in, row);
 }
 
-Prediction SeriesModel::predict(const Observation& obs) const {
+Prediction SeriesModel::predict(const Observation& obs, bool allow_screen) const {
   const std::vector<double> cov = covariates_of(obs);
   Eigen::RowVectorXd x(p_);
   const double offset = row_for(obs.time, obs.exposure, cov.data(), x);
@@ -67,6 +67,7 @@ Prediction SeriesModel::predict(const Observation& obs) const {
   options.draws = a.draws;
   options.quadrature_nodes = a.quadrature_nodes;
   options.alpha = a.alpha;
+  options.screen = allow_screen && a.screen;
   if (a.method == bounds::Method::simulate) {
     bounds::Rng rng = bounds::Rng::for_record(a.seed, id_, obs.time.time_since_epoch().count());
     out.bounds = bounds::evaluate(out.predictor, out.noise, obs.count, options, &rng);
@@ -202,9 +203,12 @@ Eigen::VectorXd SeriesModel::resistant_weights(const glm::FitResult& fit) const 
   const double threshold = settings_->model.reweight_threshold;
   Eigen::VectorXd w = weights_;
   bool any = false;
+  // Allocated once here rather than per record (the same arithmetic).
+  Eigen::RowVectorXd x(p_);
+  Eigen::VectorXd cx(p_);
   for (Eigen::Index i = 0; i < n; ++i) {
     if (weights_(i) <= 0) continue;
-    const Eigen::RowVectorXd x = X_.row(i);
+    x = X_.row(i);
     const double eta = x.dot(fit.coefficients) + offset_(i);
     const double mu = glm::link_inv(link, eta);
     if (!(mu > 1e-12)) continue;
@@ -212,7 +216,7 @@ Eigen::VectorXd SeriesModel::resistant_weights(const glm::FitResult& fit) const 
     const double d = glm::mu_eta(link, eta);
     // Leverage h = w x' (X'WX)^-1 x with Cov = phi (X'WX)^-1 for quasi-Poisson.
     const double working = weights_(i) * d * d / variance;
-    const Eigen::VectorXd cx = fit.covariance * x.transpose();
+    cx.noalias() = fit.covariance * x.transpose();
     const double h = std::clamp(working * x.dot(cx) / phi, 0.0, 0.99);
     // Poisson Anscombe residual; its variance is about the dispersion index
     // (phi, or 1 + mu / theta for NB2).

@@ -52,7 +52,11 @@ class SeriesModel {
 
   // Predictive bounds for `obs` from the current fit. Precondition: ready()
   // and !missing_covariate(obs). Const: judging never changes the model.
-  Prediction predict(const Observation& obs) const;
+  // With `allow_screen` and alert.screen on, a record that provably raises
+  // no bound alert may come back with bounds.screened set (no integer
+  // bounds; see bounds::Bounds); calling again without it gives the full
+  // bounds of the same record (the draws are seeded per record).
+  Prediction predict(const Observation& obs, bool allow_screen = false) const;
 
   // Adds `obs` to the training history, trims the window, refits if due.
   // Precondition: obs.time is later than every record learned so far.
@@ -75,6 +79,8 @@ class SeriesModel {
   const std::string& last_fit_note() const { return last_fit_note_; }
   glm::FitStatus last_fit_status() const { return last_fit_status_; }
   std::uint64_t fits_done() const { return fits_done_; }
+  // Records learned since the last refit (0 right after one).
+  std::size_t records_since_refit() const { return since_refit_; }
 
   // Every field that decides future predictions (history, covariates, fit
   // with its warm-start values, counters), in the layout of core/state_codec.h.

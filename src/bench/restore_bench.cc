@@ -1,0 +1,127 @@
+// Checkpoint write and restore times (benchmark, not a test).
+//
+//   build/restore_bench [--series N] [--window W] [--dir DIR]
+//
+// Builds an engine of N daily series (default 100,000), each with a full
+// window of W records (default 156) fitted once, as memory_bench does
+// (quasi-Poisson, 8 coefficients), then in one run times:
+//   1. reading the checkpoint file's bytes into memory (the baseline: what
+//      any restore must at least do),
+//   2. checkpoint::write_file (encode, write, fsync, rename),
+//   3. checkpoint::read_file (read, check the seal, decode every series),
+// and prints seconds and the ratio of each to the baseline, plus the file
+// size. The restored engine is checked to hold the same series count and
+// the same state text as the one written.
+#include <chrono>
+#include <cmath>
+#include <cstdio>
+#include <cstdlib>
+#include <fstream>
+#include <sstream>
+#include <string>
+
+#include "bounds/random.h"
+#include "checkpoint/checkpoint.h"
+#include "engine/engine.h"
+
+using namespace tallyd;
+
+namespace {
+
+double seconds_since(std::chrono::steady_clock::time_point t0) {
+  return std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+}
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  long series = 100000;
+  long window = 156;
+  std::string dir = "/tmp";
+  for (int i = 1; i + 1 < argc; i += 2) {
+    const std::string k = argv[i];
+    if (k == "--dir") {
+      dir = argv[i + 1];
+      continue;
+    }
+    const long v = std::strtol(argv[i + 1], nullptr, 10);
+    if (k == "--series") series = v;
+    else if (k == "--window") window = v;
+    else {
+      std::fprintf(stderr, "unknown option %s\n", argv[i]);
+      return 1;
+    }
+  }
+  if (series < 1 || window < 10) {
+    std::fprintf(stderr, "need --series >= 1 and --window >= 10\n");
+    return 1;
+  }
+
+  SettingsTable settings;
+  ModelSpec& m = settings.defaults.model;
+  m.family = glm::Family::quasipoisson;
+  m.trend = true;
+  m.seasons = {Season{Seconds{31557600}, 2}, Season{Seconds{7 * 86400}, 1}};
+  m.window = Window{std::nullopt, static_cast<std::size_t>(window)};
+  m.min_history = static_cast<std::size_t>(window);
+  m.refit_every = static_cast<std::size_t>(window);
+  EngineLimits limits;
+  limits.max_series = static_cast<std::size_t>(series);
+
+  const auto t_build = std::chrono::steady_clock::now();
+  Engine engine(settings, limits);
+  bounds::Rng rng(99);
+  const TimePoint start = parse_time("2024-01-01T06:00:00Z").value();
+  Observation o;
+  for (long d = 0; d < window + 1; ++d) {
+    o.time = start + Seconds{d * 86400};
+    for (long s = 0; s < series; ++s) {
+      o.series = "s" + std::to_string(s);
+      o.exposure = 1;
+      o.count = rng.poisson(5.0 + static_cast<double>(s % 20));
+      engine.ingest(o);
+    }
+  }
+  std::printf("engine: %ld series, window %ld, built in %.1f s (not part of the figures)\n", series, window,
+              seconds_since(t_build));
+
+  const std::string path = dir + "/restore_bench.checkpoint";
+  checkpoint::Marks marks;
+  auto t0 = std::chrono::steady_clock::now();
+  const Status written = checkpoint::write_file(path, engine, marks);
+  const double write_s = seconds_since(t0);
+  if (!written) {
+    std::fprintf(stderr, "write failed: %s\n", written.error().message.c_str());
+    return 1;
+  }
+
+  t0 = std::chrono::steady_clock::now();
+  std::string bytes;
+  {
+    std::ifstream in(path, std::ios::binary);
+    std::ostringstream ss;
+    ss << in.rdbuf();
+    bytes = std::move(ss).str();
+  }
+  const double read_s = seconds_since(t0);
+
+  t0 = std::chrono::steady_clock::now();
+  auto restored = checkpoint::read_file(path, settings, limits);
+  const double restore_s = seconds_since(t0);
+  if (!restored || !*restored) {
+    std::fprintf(stderr, "restore failed: %s\n", restored ? "no file" : restored.error().message.c_str());
+    return 1;
+  }
+  const Engine& back = *(*restored)->engine;
+  const bool same = back.series_count() == engine.series_count() &&
+                    checkpoint::encode(back, marks) == checkpoint::encode(engine, marks);
+
+  std::printf("checkpoint file: %.1f MiB\n", static_cast<double>(bytes.size()) / (1024.0 * 1024.0));
+  std::printf("%-40s %10s %10s\n", "step", "seconds", "ratio");
+  std::printf("%-40s %10.3f %10.2f\n", "read the file's bytes (baseline)", read_s, 1.0);
+  std::printf("%-40s %10.3f %10.2f\n", "write_file (encode, write, fsync)", write_s, write_s / read_s);
+  std::printf("%-40s %10.3f %10.2f\n", "read_file (read, check, decode)", restore_s, restore_s / read_s);
+  std::printf("restored engine %s the one written\n", same ? "encodes identically to" : "DIFFERS from");
+  std::remove(path.c_str());
+  return same ? 0 : 1;
+}

@@ -1,0 +1,58 @@
+// Internal to bounds: a cheap test that settles "no alert" for a record
+// before the full bound search (quadrature) or the draws (simulate).
+//
+// Most records sit near their expected count. For them one Boost.Math tail
+// at the central mean mu_c = g^{-1}(eta_mean) gives lower bounds on both
+// p-values of the quadrature mixture (mixture.h):
+//   P(Y >= y) >= W_up  * P(Y >= y | mu_c),  W_up  = weight of components with mu_i >= mu_c,
+//   P(Y <= y) >= W_low * P(Y <= y | mu_c),  W_low = weight of components with mu_i <= mu_c,
+// because every count noise tallyd uses is stochastically increasing in its
+// mean (Poisson; NB2 at fixed size; quasi-Poisson's NB2 with size
+// mu / (phi - 1) has a fixed success probability 1 / phi and a size growing
+// with mu), and the link is non-decreasing. The rules are symmetric about
+// eta_mean, so W_up and W_low are at least about 1/2 (1 with one node).
+// The same inequalities hold for the true mixture with weight 1/2 each.
+//
+// Quadrature: when both floors exceed alpha by the margin kScreenMargin
+// (which covers the ~1e-12 relative error of the Boost.Math tails and of
+// the search's sums), the full search would find the observed count within
+// the bounds: the screen never changes an alert (error bound zero).
+//
+// Simulate: the draws' p-value is a binomial fraction K-draws estimate of
+// the true mixture's p >= floor. When floor > alpha, P(estimate <= alpha)
+// <= exp(-K KL(alpha || floor)) (Chernoff-Hoeffding; Hoeffding 1963). The
+// screen settles a side only when that bound is at most
+// kSimulateScreenRisk (1e-12), so it changes a record's verdict with
+// probability at most 2e-12, taking the generator as ideal.
+#pragma once
+
+#include <cstdint>
+
+#include "bounds/predictive.h"
+
+namespace tallyd::bounds {
+
+// Relative margin of the quadrature screen over alpha.
+inline constexpr double kScreenMargin = 1e-6;
+// Largest probability, per side and record, that a simulate record the
+// screen settles would have been flagged by its draws.
+inline constexpr double kSimulateScreenRisk = 1e-12;
+
+struct ScreenOutcome {
+  bool settled = false;   // no alert on either side: the full evaluation is not needed
+  double expected = 0;    // the quadrature mixture's E[Y] (what quadrature_bounds reports)
+  double p_high_floor = 0;  // lower bound on P(Y >= observed)
+  double p_low_floor = 0;   // lower bound on P(Y <= observed)
+};
+
+// Preconditions as quadrature_bounds (evaluate checks them). `draws` is 0
+// for quadrature, the number of draws for simulate.
+ScreenOutcome screen_record(const Predictor& predictor, const CountNoise& noise, std::int64_t observed,
+                            int nodes, double alpha, int draws);
+
+// exp(-K KL(alpha || p)) for p > alpha: the Chernoff bound on a binomial
+// fraction of K trials with success probability p falling to alpha or below.
+// 1 when p <= alpha.
+double binomial_low_tail_bound(double alpha, double p, int draws);
+
+}  // namespace tallyd::bounds

@@ -1,0 +1,87 @@
+#include "bounds/screen.h"
+
+#include <cmath>
+#include <vector>
+
+#include <boost/math/distributions/binomial.hpp>
+#include <boost/math/distributions/poisson.hpp>
+#include <catch2/catch.hpp>
+
+#include "bounds/quadrature.h"
+
+using namespace tallyd::bounds;
+using tallyd::glm::Family;
+using tallyd::glm::Link;
+
+TEST_CASE("screen: with no parameter uncertainty the floors are the exact Poisson tails", "[bounds][screen]") {
+  // Reference: Boost.Math's poisson_distribution (independent of the noise
+  // code under test). One component of weight 1, so the floors are the tails.
+  const Predictor p{std::log(12.0), 0};
+  const CountNoise noise;  // Poisson, log link
+  const boost::math::poisson_distribution<double> poisson(12.0);
+  for (std::int64_t y : {0, 3, 12, 20, 30}) {
+    const ScreenOutcome s = screen_record(p, noise, y, 48, 0.001, 0);
+    const double cdf = boost::math::cdf(poisson, static_cast<double>(y));
+    const double at_least = y == 0 ? 1.0 : boost::math::cdf(boost::math::complement(poisson, static_cast<double>(y - 1)));
+    CHECK(s.p_low_floor == Approx(cdf).epsilon(1e-10));
+    CHECK(s.p_high_floor == Approx(at_least).epsilon(1e-10));
+    CHECK(s.expected == Approx(12.0).epsilon(1e-12));
+  }
+}
+
+TEST_CASE("screen: settles only records the full quadrature judges unremarkable, and floors lie below its p-values",
+          "[bounds][screen]") {
+  // The full quadrature p-values are themselves checked against Boost.Math's
+  // adaptive Gauss-Kronrod in quadrature_test.cc; here the screen must bound
+  // them from below and never settle a record they flag.
+  const double alpha = 0.001;
+  std::vector<CountNoise> noises;
+  noises.push_back(CountNoise{Family::poisson, Link::log, 1, 0});
+  noises.push_back(CountNoise{Family::quasipoisson, Link::log, 2.5, 0});
+  noises.push_back(CountNoise{Family::negbin, Link::log, 1, 4.0});
+  noises.push_back(CountNoise{Family::poisson, Link::sqrt, 1, 0});
+  int settled = 0, flagged = 0, checked = 0;
+  for (const CountNoise& noise : noises) {
+    for (double mean : {0.5, 4.0, 30.0, 400.0}) {
+      for (double variance : {0.0, 0.01, 0.2}) {
+        const double eta = noise.link == Link::sqrt ? std::sqrt(mean) : std::log(mean);
+        const Predictor p{eta, noise.link == Link::sqrt ? variance * mean : variance};
+        for (double factor : {0.0, 0.2, 0.5, 0.8, 1.0, 1.3, 2.0, 3.0, 5.0}) {
+          const auto y = static_cast<std::int64_t>(std::floor(factor * mean));
+          const ScreenOutcome s = screen_record(p, noise, y, 48, alpha, 0);
+          const Bounds full = quadrature_bounds(p, noise, y, 48, alpha);
+          ++checked;
+          CHECK(s.expected == full.expected);  // the same mixture, summed the same way
+          CHECK(s.p_high_floor <= full.p_high * (1 + 1e-9));
+          CHECK(s.p_low_floor <= full.p_low * (1 + 1e-9));
+          const bool alert = full.p_high <= alpha || full.p_low <= alpha;
+          if (alert) ++flagged;
+          if (s.settled) {
+            ++settled;
+            CHECK_FALSE(alert);
+          }
+        }
+      }
+    }
+  }
+  // The grid covers both kinds of record, so the checks above bite.
+  CHECK(settled > checked / 3);
+  CHECK(flagged > 20);
+}
+
+TEST_CASE("screen: the Chernoff bound lies above the exact binomial lower tail", "[bounds][screen]") {
+  // Reference: Boost.Math binomial_distribution; the bound is Hoeffding
+  // (1963), Theorem 1, for the lower tail of a binomial fraction.
+  for (int draws : {500, 10000}) {
+    for (double alpha : {0.001, 0.01}) {
+      for (double p : {0.002, 0.005, 0.02, 0.1}) {
+        if (p <= alpha) continue;
+        const boost::math::binomial_distribution<double> bin(draws, p);
+        const double exact = boost::math::cdf(bin, std::floor(alpha * draws));
+        CHECK(binomial_low_tail_bound(alpha, p, draws) >= exact);
+      }
+    }
+  }
+  CHECK(binomial_low_tail_bound(0.01, 0.005, 1000) == 1);  // p below alpha: nothing settled
+  CHECK(binomial_low_tail_bound(0.001, 0.02, 10000) < 1e-12);
+}
