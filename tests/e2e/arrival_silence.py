@@ -12,7 +12,7 @@ import sys
 import tempfile
 import time
 
-from serve_harness import Server, fail, replay, same_file
+from serve_harness import Server, fail, followed_file_tables, replay, same_file
 
 tallyd, src = sys.argv[1], sys.argv[2]
 work = tempfile.mkdtemp(prefix="tallyd-arrival-")
@@ -128,21 +128,7 @@ run_replay(complete, final_ref)
 feed = os.path.join(work, "feed.csv")
 served = os.path.join(work, "served.jsonl")
 with open(os.path.join(work, "serve.toml"), "w") as f:
-    f.write(MODEL + """
-[[source]]
-kind = "follow"
-path = "%s"
-
-[output]
-alerts = "%s"
-
-[checkpoint]
-path = "%s"
-every = "1s"
-
-[intake]
-poll_ms = 50
-""" % (feed, served, os.path.join(work, "state.ckpt")))
+    f.write(MODEL + followed_file_tables(feed, served, os.path.join(work, "state.ckpt")))
 half = len(feed_lines) // 2
 with open(feed, "w") as f:
     f.write(HEADER + "".join(feed_lines[:half]))

@@ -7,7 +7,7 @@ import sys
 import tempfile
 import time
 
-from serve_harness import Server, fail, replay, same_file
+from serve_harness import Server, fail, followed_file_tables, replay, same_file
 
 tallyd, src = sys.argv[1], sys.argv[2]
 seed = int(os.environ.get("TALLYD_CRASH_SEED", "20261201"))
@@ -21,21 +21,7 @@ config = os.path.join(work, "serve.toml")
 with open(model) as f:
     base = f.read()
 with open(config, "w") as f:
-    f.write(base + """
-[[source]]
-kind = "follow"
-path = "%s"
-
-[output]
-alerts = "%s"
-
-[checkpoint]
-path = "%s"
-every = "1s"
-
-[intake]
-poll_ms = 50
-""" % (feed, alerts, os.path.join(work, "state.ckpt")))
+    f.write(base + followed_file_tables(feed, alerts, os.path.join(work, "state.ckpt")))
 
 ref = os.path.join(work, "reference.jsonl")
 replay(tallyd, feed_src, model, ref)

@@ -11,7 +11,7 @@ import shutil
 import sys
 import tempfile
 
-from serve_harness import Server, fail, replay, same_file
+from serve_harness import Server, fail, followed_file_tables, replay, same_file
 import episode_check
 
 tallyd, src = sys.argv[1], sys.argv[2]
@@ -59,22 +59,7 @@ if not any('"detector":"shift"' in l for l in ref_lines):
 
 def write_config(idle):
     with open(config, "w") as f:
-        f.write(model_text % idle + """
-[[source]]
-kind = "follow"
-name = "traps"
-path = "%s"
-
-[output]
-alerts = "%s"
-
-[checkpoint]
-path = "%s"
-every = "1s"
-
-[intake]
-poll_ms = 50
-""" % (feed, alerts, os.path.join(work, "state.ckpt")))
+        f.write(model_text % idle + followed_file_tables(feed, alerts, os.path.join(work, "state.ckpt"), name="traps"))
 
 # 1. Idle time 1h: the last step waits; a graceful stop keeps it (not released early).
 write_config("1h")

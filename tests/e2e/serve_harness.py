@@ -108,6 +108,27 @@ LINE = re.compile(r'^([a-zA-Z_:][a-zA-Z0-9_:]*)(\{(.*)\})? (\S+)$')
 LABEL = re.compile(r'([a-zA-Z_][a-zA-Z0-9_]*)="((?:[^"\\]|\\.)*)"')
 
 
+def followed_file_tables(feed, alerts, checkpoint, name=None):
+    """The service tables the crash-style tests share: one followed file,
+    the alert log, a checkpoint every second and a 50 ms poll."""
+    named = 'name = "%s"\n' % name if name else ""
+    return """
+[[source]]
+kind = "follow"
+%spath = "%s"
+
+[output]
+alerts = "%s"
+
+[checkpoint]
+path = "%s"
+every = "1s"
+
+[intake]
+poll_ms = 50
+""" % (named, feed, alerts, checkpoint)
+
+
 def parse_openmetrics(text):
     """Parses the OpenMetrics text format (1.0.0) strictly enough to catch a
     malformed exposition: every sample line must match the sample grammar,
