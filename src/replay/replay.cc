@@ -2,19 +2,22 @@
 
 #include <fmt/format.h>
 
-#include "engine/output_lines.h"
 
 namespace tallyd {
 
+std::uint64_t write_lines(const ReplayOutputs& out, const std::vector<OutputLine>& lines) {
+  std::uint64_t alerts = 0;
+  for (const OutputLine& l : lines) {
+    if (out.alerts_json) *out.alerts_json << l.json << '\n';
+    if (out.alerts_text) *out.alerts_text << l.text << '\n';
+    alerts += l.alert ? 1 : 0;
+  }
+  return alerts;
+}
+
 std::uint64_t replay_feeds(FeedSet& feeds, Engine& engine, const ReplayOutputs& out) {
   std::uint64_t written = 0;
-  auto write = [&](const std::vector<OutputLine>& lines) {
-    for (const OutputLine& l : lines) {
-      if (out.alerts_json) *out.alerts_json << l.json << '\n';
-      if (out.alerts_text) *out.alerts_text << l.text << '\n';
-      written += l.alert ? 1 : 0;
-    }
-  };
+  auto write = [&](const std::vector<OutputLine>& lines) { written += write_lines(out, lines); };
   // Late records and silence live in Engine::offer; this writes what comes out, in order.
   auto emit = [&](const OfferResult& o) {
     if (o.refused && out.on_rejection) out.on_rejection(*o.refused);

@@ -10,6 +10,7 @@
 
 #include "core/reject.h"
 #include "engine/engine.h"
+#include "engine/output_lines.h"
 #include "feed/feed_merge.h"
 
 namespace tallyd {
@@ -24,6 +25,10 @@ struct ReplayOutputs {
   // feed order, after ingest; for tuning and reports. Null = not called.
   std::function<void(const Observation&, const IngestResult&)> on_record;
 };
+
+// Writes `lines` to the outputs that are set; returns how many of them are
+// alerts (closing lines are not). Shared by the one- and many-thread replays.
+std::uint64_t write_lines(const ReplayOutputs& out, const std::vector<OutputLine>& lines);
 
 // Feeds every item of `feeds` through `engine` in merged time order and
 // writes each alert and episode closing as it comes. Returns the number of

@@ -3,7 +3,6 @@
 #include <algorithm>
 #include <vector>
 
-#include "engine/output_lines.h"
 
 namespace tallyd {
 
@@ -11,14 +10,6 @@ std::uint64_t replay_feeds_sharded(FeedSet& feeds, ShardedEngine& engine, const 
                                    std::size_t batch_records) {
   batch_records = std::max<std::size_t>(batch_records, 1);
   std::uint64_t written = 0;
-  // The same lines, in the same order, as replay_feeds writes.
-  auto write = [&](const std::vector<OutputLine>& lines) {
-    for (const OutputLine& l : lines) {
-      if (out.alerts_json) *out.alerts_json << l.json << '\n';
-      if (out.alerts_text) *out.alerts_text << l.text << '\n';
-      written += l.alert ? 1 : 0;
-    }
-  };
   std::vector<Observation> batch;
   batch.reserve(batch_records);
   const auto run_batch = [&] {
@@ -30,7 +21,7 @@ std::uint64_t replay_feeds_sharded(FeedSet& feeds, ShardedEngine& engine, const 
         continue;
       }
       if (out.on_record) out.on_record(batch[i], r);
-      write(output_lines(r));
+      written += write_lines(out, output_lines(r));  // the same lines, in the same order, as replay_feeds
     }
     batch.clear();
   };
