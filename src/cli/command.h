@@ -4,8 +4,13 @@
 #pragma once
 
 #include <memory>
+#include <optional>
+#include <utility>
 
 #include <CLI/CLI.hpp>
+#include <spdlog/spdlog.h>
+
+#include "core/result.h"
 
 namespace tallyd::cli {
 
@@ -14,6 +19,17 @@ enum ExitCode : int {
   kExitUsage = 1,  // bad command line or config
   kExitData = 2,   // a feed could not be read, or the data cannot answer the question
 };
+
+// The value of `r`, or nullopt after logging its error: for the loads a
+// command does before its work, whose failure ends the command.
+template <class T>
+std::optional<T> value_or_report(Result<T> r) {
+  if (!r) {
+    spdlog::error("{}", r.error().message);
+    return std::nullopt;
+  }
+  return std::optional<T>(std::move(r).value());
+}
 
 class Command {
  public:

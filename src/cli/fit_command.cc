@@ -42,12 +42,9 @@ class FitCommand final : public Command {
   }
 
   int run() override {
-    auto loaded = load_config_or_defaults(config_path_);
-    if (!loaded) {
-      spdlog::error("{}", loaded.error().message);
-      return kExitUsage;
-    }
-    const MonitorConfig config = std::move(loaded).value();
+    std::optional<MonitorConfig> loaded = value_or_report(load_config_or_defaults(config_path_));
+    if (!loaded) return kExitUsage;
+    const MonitorConfig config = std::move(*loaded);
     if (int rc = read_series(); rc != kExitOk) return rc;
 
     Result<ModelSpec> spec = build_spec(config);

@@ -53,12 +53,9 @@ class ReplayCommand final : public Command {
   }
 
   int run() override {
-    auto loaded = load_config_or_defaults(config_path_);
-    if (!loaded) {
-      spdlog::error("{}", loaded.error().message);
-      return kExitUsage;
-    }
-    const MonitorConfig config = std::move(loaded).value();
+    std::optional<MonitorConfig> loaded = value_or_report(load_config_or_defaults(config_path_));
+    if (!loaded) return kExitUsage;
+    const MonitorConfig config = std::move(*loaded);
 
     ReadOptions read_options;
     read_options.max_line_bytes = max_line_bytes_;
@@ -100,12 +97,9 @@ class ReplayCommand final : public Command {
 
     std::vector<tune::Episode> episodes;
     if (!events_path_.empty()) {
-      auto loaded = tune::load_episodes(events_path_);
-      if (!loaded) {
-        spdlog::error("{}", loaded.error().message);
-        return kExitUsage;
-      }
-      episodes = std::move(loaded).value();
+      std::optional<std::vector<tune::Episode>> loaded = value_or_report(tune::load_episodes(events_path_));
+      if (!loaded) return kExitUsage;
+      episodes = std::move(*loaded);
     }
     if (plot_series_.empty() != plot_path_.empty()) {
       spdlog::error("--plot-series and --plot-file go together");
@@ -119,14 +113,7 @@ class ReplayCommand final : public Command {
     Engine engine(config.settings, config.limits, config.fdr);
     engine.keep_full_bounds(want_traces);  // traces show every record's bounds
     replay_feeds(*feeds, engine, out);
-    std::cout.flush();
-    if (alerts_file.is_open()) {
-      alerts_file.flush();
-      if (!alerts_file) {
-        spdlog::error("{}: writing the alerts file failed", alerts_path_);
-        return kExitData;
-      }
-    }
+    if (!outputs_written(alerts_file)) return kExitData;
     const std::string summary = describe_counters(engine.counters(), engine.series_count());
     if (!quiet_) spdlog::info("replay: {}", summary);
     if (want_traces) return write_pictures(traces.finish(engine), episodes, summary);
@@ -134,6 +121,16 @@ class ReplayCommand final : public Command {
   }
 
  private:
+  // Flushes standard output and the alerts file; false (reported) when the file could not be written.
+  bool outputs_written(std::ofstream& alerts_file) const {
+    std::cout.flush();
+    if (!alerts_file.is_open()) return true;
+    alerts_file.flush();
+    if (alerts_file) return true;
+    spdlog::error("{}: writing the alerts file failed", alerts_path_);
+    return false;
+  }
+
   int run_sharded(const MonitorConfig& config, FeedSet& feeds, const ReplayOutputs& out, std::ofstream& alerts_file,
                   bool want_traces) {
     // The shards call ingest directly: the arrival hold and the silence
@@ -153,14 +150,7 @@ class ReplayCommand final : public Command {
     }
     ShardedEngine engine(config.settings, workers_, config.limits);
     replay_feeds_sharded(feeds, engine, out);
-    std::cout.flush();
-    if (alerts_file.is_open()) {
-      alerts_file.flush();
-      if (!alerts_file) {
-        spdlog::error("{}: writing the alerts file failed", alerts_path_);
-        return kExitData;
-      }
-    }
+    if (!outputs_written(alerts_file)) return kExitData;
     if (!quiet_) spdlog::info("replay: {}", describe_counters(engine.counters(), engine.series_count()));
     return kExitOk;
   }

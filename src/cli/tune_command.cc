@@ -77,20 +77,14 @@ class TuneCommand final : public Command {
   }
 
   int run() override {
-    auto loaded_config = load_config_or_defaults(config_path_);
-    if (!loaded_config) {
-      spdlog::error("{}", loaded_config.error().message);
-      return kExitUsage;
-    }
-    const MonitorConfig config = std::move(loaded_config).value();
+    std::optional<MonitorConfig> loaded_config = value_or_report(load_config_or_defaults(config_path_));
+    if (!loaded_config) return kExitUsage;
+    const MonitorConfig config = std::move(*loaded_config);
     std::vector<tune::Episode> episodes;
     if (!events_path_.empty()) {
-      auto loaded = tune::load_episodes(events_path_);
-      if (!loaded) {
-        spdlog::error("{}", loaded.error().message);
-        return kExitUsage;
-      }
-      episodes = std::move(loaded).value();
+      std::optional<std::vector<tune::Episode>> loaded = value_or_report(tune::load_episodes(events_path_));
+      if (!loaded) return kExitUsage;
+      episodes = std::move(*loaded);
     }
     std::vector<glm::Family> families;
     for (const std::string& f : families_) {
