@@ -20,6 +20,7 @@
 #include <fstream>
 #include <string>
 
+#include "bench/wide_model.h"
 #include "bounds/random.h"
 #include "engine/engine.h"
 #include "series/design.h"
@@ -63,14 +64,7 @@ int main(int argc, char** argv) {
     return 1;
   }
 
-  SettingsTable settings;
-  ModelSpec& m = settings.defaults.model;
-  m.family = glm::Family::quasipoisson;
-  m.trend = true;
-  m.seasons = {Season{Seconds{31557600}, 2}, Season{Seconds{7 * 86400}, 1}};
-  m.window = Window{std::nullopt, static_cast<std::size_t>(window)};
-  m.min_history = static_cast<std::size_t>(window);
-  m.refit_every = static_cast<std::size_t>(window);
+  const SettingsTable settings = bench::wide_model_settings(window);
   EngineLimits limits;
   limits.max_series = static_cast<std::size_t>(series);
 
@@ -96,7 +90,7 @@ int main(int argc, char** argv) {
     for (const auto& [id, model] : engine.series()) fits += model->fits_done();
     const double secs = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
     std::printf("series %ld, window %ld records, %d coefficients, %llu fits, %llu judged, %.1f s\n", series, window,
-                coefficient_count(m), static_cast<unsigned long long>(fits),
+                coefficient_count(settings.defaults.model), static_cast<unsigned long long>(fits),
                 static_cast<unsigned long long>(engine.counters().judged), secs);
     std::printf("%-28s %12s %14s\n", "measure", "MiB", "KiB/series");
     std::printf("%-28s %12.1f %14s\n", "RSS before engine", before / 1024, "");

@@ -20,6 +20,7 @@
 #include <sstream>
 #include <string>
 
+#include "bench/wide_model.h"
 #include "bounds/random.h"
 #include "checkpoint/checkpoint.h"
 #include "engine/engine.h"
@@ -57,14 +58,7 @@ int main(int argc, char** argv) {
     return 1;
   }
 
-  SettingsTable settings;
-  ModelSpec& m = settings.defaults.model;
-  m.family = glm::Family::quasipoisson;
-  m.trend = true;
-  m.seasons = {Season{Seconds{31557600}, 2}, Season{Seconds{7 * 86400}, 1}};
-  m.window = Window{std::nullopt, static_cast<std::size_t>(window)};
-  m.min_history = static_cast<std::size_t>(window);
-  m.refit_every = static_cast<std::size_t>(window);
+  const SettingsTable settings = bench::wide_model_settings(window);
   EngineLimits limits;
   limits.max_series = static_cast<std::size_t>(series);
 
