@@ -5,6 +5,7 @@
 #include <limits>
 
 #include "series/design.h"
+#include "series/resistant_dispersion.h"
 
 namespace tallyd {
 
@@ -160,18 +161,28 @@ void SeriesModel::refit() {
     if (resistant.size() > 0) {
       glm::FitResult second = glm::fit_glm(X_, y_, offset_, resistant, options, &result.coefficients, true);
       ++fits_done_;
-      if (second.status == glm::FitStatus::ok) {
-        // The weighted Pearson statistic loses the largest residuals, so the
-        // reweighted quasi-Poisson phi runs low even with no outbreak, and
-        // narrower bounds alarm more often. Keep the larger of the two
-        // dispersions (the mean stays resistant); measured in docs/detection.md.
-        if (settings_->model.family == glm::Family::quasipoisson && second.dispersion > 0 &&
-            result.dispersion > second.dispersion) {
-          second.covariance *= result.dispersion / second.dispersion;
-          second.dispersion = result.dispersion;
-        }
-        result = std::move(second);
-      }
+      if (second.status == glm::FitStatus::ok) result = std::move(second);
+    }
+    // The weighted Pearson statistic of the resistant fit lacks the largest
+    // residuals, so its quasi-Poisson phi runs low even with no outbreak;
+    // divide by the expected shrinkage (series/resistant_dispersion.h). The
+    // factor is an average over windows with and without a down-weighted
+    // record, so it applies to both (with none, the first fit is the
+    // resistant fit). Taking the first fit's phi instead would let past
+    // outbreaks widen every later bound, which the reweighting is there to
+    // prevent.
+    if (settings_->model.family == glm::Family::quasipoisson && result.dispersion > 0) {
+      // At the window's average fitted mean, and at the corrected phi (one
+      // step: the factor moves slowly with phi).
+      const Eigen::VectorXd eta = X_ * result.coefficients + offset_;
+      double mean_sum = 0;
+      for (Eigen::Index i = 0; i < eta.size(); ++i) mean_sum += glm::link_inv(settings_->model.link, eta(i));
+      const double mean = mean_sum / static_cast<double>(eta.size());
+      const double threshold = settings_->model.reweight_threshold;
+      const double rough = result.dispersion / normal_reweighted_dispersion_factor(threshold);
+      const double factor = reweighted_dispersion_factor(threshold, mean, rough);
+      result.covariance /= factor;
+      result.dispersion /= factor;
     }
   }
   if (result.status == glm::FitStatus::ok ||
