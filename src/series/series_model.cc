@@ -203,25 +203,31 @@ Eigen::VectorXd SeriesModel::resistant_weights(const glm::FitResult& fit) const 
   const double threshold = settings_->model.reweight_threshold;
   Eigen::VectorXd w = weights_;
   bool any = false;
-  // Allocated once here rather than per record (the same arithmetic).
-  Eigen::RowVectorXd x(p_);
-  Eigen::VectorXd cx(p_);
+  // The linear predictors and the quadratic forms x' Cov x of all records in
+  // two matrix products, rather than a small product per record.
+  Eigen::VectorXd eta = X_ * fit.coefficients;
+  eta += offset_;
+  const Eigen::MatrixXd xc = X_ * fit.covariance;
+  const Eigen::VectorXd quadratic = xc.cwiseProduct(X_).rowwise().sum();
   for (Eigen::Index i = 0; i < n; ++i) {
     if (weights_(i) <= 0) continue;
-    x = X_.row(i);
-    const double eta = x.dot(fit.coefficients) + offset_(i);
-    const double mu = glm::link_inv(link, eta);
+    const double mu = glm::link_inv(link, eta(i));
     if (!(mu > 1e-12)) continue;
+    const double y = y_(i);
+    // The Anscombe residual has the sign of y - mu: a record at or below its
+    // mean cannot pass a non-negative threshold.
+    if (threshold >= 0 && !(y > mu)) continue;
     const double variance = nb ? mu + mu * mu / fit.theta : mu;
-    const double d = glm::mu_eta(link, eta);
+    // Under the log link d mu / d eta is exp(eta) again: reuse it.
+    const double d = link == glm::Link::log ? mu : glm::mu_eta(link, eta(i));
     // Leverage h = w x' (X'WX)^-1 x with Cov = phi (X'WX)^-1 for quasi-Poisson.
     const double working = weights_(i) * d * d / variance;
-    cx.noalias() = fit.covariance * x.transpose();
-    const double h = std::clamp(working * x.dot(cx) / phi, 0.0, 0.99);
+    const double h = std::clamp(working * quadratic(i) / phi, 0.0, 0.99);
     // Poisson Anscombe residual; its variance is about the dispersion index
-    // (phi, or 1 + mu / theta for NB2).
-    const double y = y_(i);
-    const double anscombe = 1.5 * (std::cbrt(y * y) - std::cbrt(mu * mu)) / std::pow(mu, 1.0 / 6.0);
+    // (phi, or 1 + mu / theta for NB2). mu^(1/6) is the square root of the
+    // square root of mu^(2/3).
+    const double mu23 = std::cbrt(mu * mu);
+    const double anscombe = 1.5 * (std::cbrt(y * y) - mu23) / std::sqrt(std::sqrt(mu23));
     const double index = nb ? 1 + mu / fit.theta : phi;
     const double s = anscombe / std::sqrt(index * (1 - h));
     if (s > threshold) {
