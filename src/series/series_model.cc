@@ -9,7 +9,10 @@
 namespace tallyd {
 
 SeriesModel::SeriesModel(std::string id, const SeriesSettings& settings)
-    : id_(std::move(id)), settings_(&settings), p_(coefficient_count(settings.model)) {}
+    : id_(std::move(id)),
+      settings_(&settings),
+      p_(coefficient_count(settings.model)),
+      seasons_per_row_(season_column_count(settings.model)) {}
 
 std::optional<std::string> SeriesModel::missing_covariate(const Observation& obs) const {
   for (const std::string& name : settings_->model.covariates)
@@ -77,13 +80,39 @@ Prediction SeriesModel::predict(const Observation& obs, bool allow_screen) const
   return out;
 }
 
+bool SeriesModel::season_cache_ok() const {
+  return season_values_.size() == records_.size() * static_cast<std::size_t>(seasons_per_row_);
+}
+
+void SeriesModel::push_season_values(TimePoint time) {
+  const std::size_t at = season_values_.size();
+  season_values_.resize(at + static_cast<std::size_t>(seasons_per_row_));
+  constexpr int kOnStack = 32;
+  if (seasons_per_row_ <= kOnStack) {
+    double row[kOnStack];
+    season_columns(settings_->model, time, row);
+    std::copy(row, row + seasons_per_row_, season_values_.begin() + static_cast<long>(at));
+    return;
+  }
+  std::vector<double> row(static_cast<std::size_t>(seasons_per_row_));
+  season_columns(settings_->model, time, row.data());
+  std::copy(row.begin(), row.end(), season_values_.begin() + static_cast<long>(at));
+}
+
+void SeriesModel::fill_season_cache() {
+  season_values_.clear();
+  for (const Stored& r : records_) push_season_values(r.time);
+}
+
 void SeriesModel::learn(const Observation& obs, double weight) {
   if (!origin_) origin_ = obs.time;
+  if (!season_cache_ok()) fill_season_cache();  // restored from a checkpoint
   records_.push_back(Stored{obs.time, obs.count, obs.exposure, weight});
   for (const std::string& name : settings_->model.covariates) {
     const double* v = obs.covariate(name);
     covariate_values_.push_back(v ? *v : 0.0);
   }
+  if (seasons_per_row_ > 0) push_season_values(obs.time);
   trim_window(obs.time);
   ++since_refit_;
   if (records_.size() >= min_history() + settings_->model.guard_records &&
@@ -95,9 +124,11 @@ void SeriesModel::learn(const Observation& obs, double weight) {
 void SeriesModel::trim_window(TimePoint latest) {
   const Window& w = settings_->model.window;
   const std::size_t k = settings_->model.covariates.size();
+  const bool cached = season_cache_ok();
   auto drop_front = [&] {
     records_.pop_front();
     covariate_values_.erase(covariate_values_.begin(), covariate_values_.begin() + static_cast<long>(k));
+    if (cached) season_values_.erase(season_values_.begin(), season_values_.begin() + seasons_per_row_);
   };
   if (w.span) {
     while (!records_.empty() && records_.front().time <= latest - *w.span) drop_front();
@@ -116,11 +147,21 @@ void SeriesModel::build_design(Eigen::MatrixXd& X, Eigen::VectorXd& y, Eigen::Ve
   offset.resize(static_cast<Eigen::Index>(n));
   weights.resize(static_cast<Eigen::Index>(n));
   std::vector<double> cov(k);
+  const bool cached = season_cache_ok();
+  const auto s = static_cast<std::size_t>(seasons_per_row_);
+  std::vector<double> seasons(s);
   for (std::size_t i = 0; i < n; ++i) {
     const Stored& r = records_[i];
     for (std::size_t c = 0; c < k; ++c) cov[c] = covariate_values_[i * k + c];
     const auto row = static_cast<Eigen::Index>(i);
-    offset(row) = row_for(r.time, r.exposure, cov.data(), X.row(row));
+    if (!cached) {
+      offset(row) = row_for(r.time, r.exposure, cov.data(), X.row(row));
+    } else {
+      // The same row as row_for, with the seasonal columns kept since learn().
+      for (std::size_t c = 0; c < s; ++c) seasons[c] = season_values_[i * s + c];
+      const DesignInput in{r.time, origin_.value_or(r.time), r.exposure, cov.data()};
+      offset(row) = design_row(settings_->model, in, seasons.data(), X.row(row));
+    }
     y(row) = static_cast<double>(r.count);
     weights(row) = r.weight;
   }
