@@ -42,11 +42,9 @@ bool WeightedLeastSquares::solve_normal(const Eigen::MatrixXd& X, const Eigen::V
   // R = L' is the triangle the QR would give (up to the signs of its rows),
   // so unscaled_covariance() serves both paths.
   r_ = gram_.transpose().triangularView<Eigen::Upper>();
-  Eigen::VectorXd rhs(p);
-  rhs.noalias() = a_.transpose() * b_;
-  gram_.triangularView<Eigen::Lower>().solveInPlace(rhs);
-  r_.triangularView<Eigen::Upper>().solveInPlace(rhs);
-  beta_ = rhs;
+  beta_.noalias() = a_.transpose() * b_;
+  gram_.triangularView<Eigen::Lower>().solveInPlace(beta_);
+  r_.triangularView<Eigen::Upper>().solveInPlace(beta_);
   kept_.resize(static_cast<std::size_t>(p));
   for (Eigen::Index j = 0; j < p; ++j) kept_[static_cast<std::size_t>(j)] = j;
   aliased_.assign(static_cast<std::size_t>(p), false);
