@@ -121,6 +121,7 @@ void SeriesModel::load_state(StateReader& r) {
   if (r.failed()) return;
   records_.clear();
   covariate_values_.clear();
+  season_values_.clear();  // derived from the times; refilled by the next learn()
   for (std::uint64_t i = 0; i < n && !r.failed(); ++i) {
     Stored s{};
     s.time = TimePoint{Seconds{r.i64()}};
