@@ -26,6 +26,7 @@
 // are independent, as fresh assumes; near m when they are held).
 //
 //   build/cusum_limit_eval FILE [--arl0 A] [--factor K] [--window W] [--coefficients P]
+//                          [--methods plug_in,fresh-,fresh,held]
 #include <cmath>
 #include <cstdio>
 #include <cstdlib>
@@ -128,17 +129,20 @@ double block_ratio(const std::vector<std::vector<double>>& x, int m) {
 
 int main(int argc, char** argv) {
   if (argc < 2) {
-    std::fprintf(stderr, "usage: cusum_limit_eval FILE [--arl0 A] [--factor K] [--window W] [--coefficients P]\n");
+    std::fprintf(stderr, "usage: cusum_limit_eval FILE [--arl0 A] [--factor K] [--window W] [--coefficients P] "
+                 "[--methods a,b]\n");
     return 1;
   }
   double arl0 = 500, factor = 2;
   int window = 156, coefficients = 6;
+  std::string wanted;  // comma-separated method names; empty: all
   for (int i = 2; i + 1 < argc; i += 2) {
     const std::string k = argv[i];
     if (k == "--arl0") arl0 = std::atof(argv[i + 1]);
     else if (k == "--factor") factor = std::atof(argv[i + 1]);
     else if (k == "--window") window = std::atoi(argv[i + 1]);
     else if (k == "--coefficients") coefficients = std::atoi(argv[i + 1]);
+    else if (k == "--methods") wanted = "," + std::string(argv[i + 1]) + ",";
   }
   std::FILE* f = std::fopen(argv[1], "r");
   if (!f) {
@@ -200,6 +204,7 @@ int main(int argc, char** argv) {
                 "m=26 %.3f\n",
                 acf(z, 1), acf(z, 2), acf(z, 4), block_ratio(z, 4), block_ratio(z, 13), block_ratio(z, 26));
     for (const Method& m : methods) {
+      if (!wanted.empty() && wanted.find("," + std::string(m.name) + ",") == std::string::npos) continue;
       LimitTable table;
       std::vector<double> alarms, records;
       for (const auto& [id, s] : all) {
