@@ -245,8 +245,8 @@ TEST_CASE("shift CUSUM on fitted models: realised in-control run length brackets
   // weekly negative binomial series with Var = 2 mu, mu = 5 exp(0.5 cos(2 pi
   // t / 52)) (3 to 8), through the engine as a replay runs them
   // (quasi-Poisson, trend, yearly season with 2 harmonics, 104-week window
-  // refitted every week, resistant refits), judged from week 52, ARL0 200
-  // per side. The realised alarm rate per side (alarms / judged
+  // refitted every week, resistant refits), judged from week 52, ARL0 200,
+  // low side only (its limits are the slow part). The realised alarm rate (alarms / judged
   // records, ratio estimator with the series as the unit, as
   // src/bench/detection_eval.cc) must be within 3 Monte Carlo standard
   // errors of 1 / ARL0 (common practice for a simulation check; about 40%
@@ -260,7 +260,7 @@ TEST_CASE("shift CUSUM on fitted models: realised in-control run length brackets
   m.seasons = {Season{Seconds{static_cast<std::int64_t>(kDaysPerYear * kSecondsPerDay)}, 2}};
   m.window = Window{std::nullopt, 104};
   m.min_history = 52;
-  settings.defaults.alert.direction = Direction::both;
+  settings.defaults.alert.direction = Direction::low;
   DetectSpec& d = settings.defaults.detect;
   d.shift = true;
   d.shift_arl_records = 200;
@@ -308,10 +308,10 @@ TEST_CASE("shift CUSUM on fitted models: realised in-control run length brackets
   const Rate h = rate(high), l = rate(low), hh = rate(held_high), hl = rate(held_low);
   double records = 0;
   for (double j : judged) records += j;
-  INFO("judged " << records << "; ARL high " << 1 / h.value << " (rate " << h.value
-                 << " +- " << h.se << "), low " << 1 / l.value << " (rate " << l.value << " +- " << l.se
-                 << "); held: high " << 1 / hh.value << ", low " << 1 / hl.value << "; target " << d.shift_arl_records);
-  CHECK(std::abs(h.value - target) <= 3 * h.se);
+  INFO("judged " << records << "; ARL low " << 1 / l.value << " (rate " << l.value << " +- " << l.se
+                 << "); held: low " << 1 / hl.value << " (rate " << hl.value << " +- " << hl.se << "); target "
+                 << d.shift_arl_records);
+  CHECK(h.value + hh.value == 0);  // the high side is not watched
   CHECK(std::abs(l.value - target) <= 3 * l.se);
-  CHECK(hh.value + hl.value < 2 * target - 3 * (hh.se + hl.se));
+  CHECK(hl.value < target - 3 * hl.se);
 }
