@@ -120,6 +120,8 @@ int main(int argc, char** argv) {
   m.seasons = {Season{Seconds{31557600}, 1}, Season{Seconds{7 * 86400}, 1}};
   m.window = Window{std::nullopt, a.window};
   m.min_history = 30;
+  // The R side is the usual script: a plain rolling glm, no resistant refit.
+  m.reweight = false;
   settings.defaults.alert.alpha = a.alpha;
 
   // The feed, in time order, with invented spikes and dips.
