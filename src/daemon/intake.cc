@@ -23,8 +23,6 @@ std::unique_ptr<Engine> Intake::replace_engine(std::unique_ptr<Engine> engine) {
   return engine;
 }
 
-void Intake::warn_limited(const std::string& message) { warnings_.warn(message); }
-
 void Intake::refuse(const Rejection& r, SourceFigures& figures) {
   engine_->count_rejection(r.reason);
   ++figures.rejected;

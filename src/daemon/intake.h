@@ -63,11 +63,8 @@ class Intake {
   // time runs from the latest line offered). Returns whether it released.
   bool release_step(TimePoint wall_now, SteadyTime now, const detect::FdrSpec& spec);
   std::uint64_t steps_released() const { return steps_released_; }
-  // A refusal made outside a decoder (e.g. a datagram too large, a refused connection).
+  // A refusal made before the engine (by a decoder, or a datagram too large): counted and logged.
   void refuse(const Rejection& r, SourceFigures& figures);
-  // A warning that is not a record's refusal (e.g. a connection over the
-  // limit), under the same rate limit as refusals.
-  void warn_limited(const std::string& message);
 
   // Moves the engine's data clock to `now` (the optional wall clock of
   // [intake] clock = "wall"): writes what held records and silence it releases.
@@ -83,7 +80,7 @@ class Intake {
   std::uint64_t write_failures() const { return write_failures_; }
 
  private:
-  void log_refusal(const Rejection& r) { warn_limited(r.describe()); }
+  void log_refusal(const Rejection& r) { warnings_.warn(r.describe()); }
   void write_lines(std::vector<OutputLine> lines);
   // Writes and counts what one offer or tick released; `figures` is the
   // source of the offered record (null for a tick).
