@@ -13,11 +13,20 @@
 //
 //   build/detection_eval [--series N] [--seed S] [--arl-series M]
 //                        [--family quasipoisson|negbin] [--scenario I]
-//                        [--configs plain,resistant,...]
+//                        [--configs plain,resistant,...] [--past-outbreaks K]
+//
+// --past-outbreaks K also places K outbreaks of the scenario's kind in the
+// training years of every series (Noufaily et al. 2013 likewise put outbreaks
+// in the baseline years, from memory), which is where a resistant baseline
+// should pay; default 0.
 //
 // Prints one table row per scenario and detector configuration, with 95%
 // confidence intervals; then, per scenario, the paired differences of each
-// configuration against `plain` on the same series; then (with --arl-series
+// configuration against `plain` on the same series; then, for the
+// configurations judged by the bound alone whose fits do not depend on alpha,
+// the probability of detection at a matched false-positive rate (each
+// configuration's p-value threshold set so that it alerts in no more scored
+// null weeks than plain does at alpha); then (with --arl-series
 // M > 0) the CUSUM's realised in-control run length on M further null series
 // per scenario. See docs/detection.md for the recorded figures and commands.
 //
@@ -81,21 +90,35 @@ std::int64_t draw(bounds::Rng& rng, double mean, double phi) {
   return phi > 1 ? rng.negbin(mean, mean / (phi - 1)) : rng.poisson(mean);
 }
 
-Series simulate(const Scenario& s, bool outbreak, bounds::Rng& rng) {
+// `past` further outbreaks of the scenario's kind and size start at uniform
+// weeks of the training years (they may overlap), in null and outbreak series
+// alike: the historical outbreaks that a resistant baseline must not learn.
+// None for the silent trap. With past = 0 no extra random numbers are drawn,
+// so the series are those of the earlier recorded runs.
+Series simulate(const Scenario& s, bool outbreak, bounds::Rng& rng, int past) {
   Series out;
   out.counts.resize(kWeeks);
   if (outbreak) {
     out.onset = kEvalFrom + static_cast<int>(rng.uniform() * (s.kind == Scenario::silent ? 40 : 52 - s.length));
     out.length = s.kind == Scenario::silent ? kWeeks - out.onset : s.length;
   }
-  const double sd0 = out.onset >= 0 ? std::sqrt(s.phi * baseline_mean(s, out.onset)) : 0;
+  std::vector<int> past_onsets;
+  if (s.kind != Scenario::silent)
+    for (int i = 0; i < past; ++i) past_onsets.push_back(static_cast<int>(rng.uniform() * (kEvalFrom - s.length)));
+  auto outbreak_at = [&](int onset, int length, int t) { return onset >= 0 && t >= onset && t < onset + length; };
   for (int t = 0; t < kWeeks; ++t) {
-    const bool in = out.onset >= 0 && t >= out.onset && t < out.onset + out.length;
     double mean = baseline_mean(s, t);
-    if (in && s.kind == Scenario::doubling) mean *= 2;
+    double extra = 0;  // expected extra cases (spikes)
+    const auto add = [&](int onset, int length) {
+      if (!outbreak_at(onset, length, t)) return;
+      if (s.kind == Scenario::doubling) mean *= 2;
+      if (s.kind == Scenario::spike) extra += s.k * std::sqrt(s.phi * baseline_mean(s, onset));
+    };
+    add(out.onset, out.length);
+    for (int onset : past_onsets) add(onset, s.length);
     std::int64_t y = draw(rng, mean, s.phi);
-    if (in && s.kind == Scenario::spike) y += rng.poisson(s.k * sd0);
-    if (in && s.kind == Scenario::silent) y = 0;
+    if (extra > 0) y += rng.poisson(extra);
+    if (s.kind == Scenario::silent && outbreak_at(out.onset, out.length, t)) y = 0;
     out.counts[static_cast<std::size_t>(t)] = y;
   }
   return out;
@@ -108,6 +131,9 @@ struct Tally {
   std::vector<double> detected;                           // per outbreak series: 1 if any alert during the outbreak
   std::vector<double> outbreak_weeks, outbreak_alert_weeks;
   std::vector<int> delays;
+  // The bound's p-value on the watched side: every scored null week, and the
+  // smallest during each outbreak (for detection at a matched false-positive rate).
+  std::vector<double> null_week_p, outbreak_min_p;
   // Null series, judged records: squared error of the fitted log mean against
   // the simulated one, and the model's own variance of it (eta_variance).
   double log_error_squares = 0, eta_variances = 0, log_errors = 0;
@@ -181,6 +207,7 @@ void run(const Scenario& sc, const Config& cfg, glm::Family family, const std::v
     const Series& s = data[i];
     const std::string id = "s" + std::to_string(i);
     int first_alert = -1;
+    double min_p = 1;
     double weeks = 0, alert_weeks = 0, records = 0, alarms = 0;
     for (int t = 0; t < kWeeks; ++t) {
       Observation o;
@@ -193,6 +220,8 @@ void run(const Scenario& sc, const Config& cfg, glm::Family family, const std::v
       if (r.alert) alerts.push_back(*r.alert);
       bool alert = false;
       for (const Alert& a : alerts) alert = alert || counts_for(a, sc);
+      const bounds::Bounds& b = r.prediction->bounds;
+      const double p = sc.kind == Scenario::silent ? b.p_low : b.p_high;
       if (s.onset < 0) {
         const double v = r.prediction->predictor.eta_variance;
         const double e = std::log(r.prediction->bounds.expected) - 0.5 * v - std::log(baseline_mean(sc, t));
@@ -204,11 +233,13 @@ void run(const Scenario& sc, const Config& cfg, glm::Family family, const std::v
         if (t >= kEvalFrom) {
           ++weeks;
           alert_weeks += alert ? 1 : 0;
+          tally.null_week_p.push_back(p);
         }
       } else if (t >= s.onset && t < s.onset + s.length) {
         ++weeks;
         alert_weeks += alert ? 1 : 0;
         if (alert && first_alert < 0) first_alert = t;
+        min_p = std::min(min_p, p);
       }
     }
     if (s.onset < 0) {
@@ -220,9 +251,31 @@ void run(const Scenario& sc, const Config& cfg, glm::Family family, const std::v
       tally.outbreak_weeks.push_back(weeks);
       tally.outbreak_alert_weeks.push_back(alert_weeks);
       tally.detected.push_back(first_alert >= 0 ? 1 : 0);
+      tally.outbreak_min_p.push_back(min_p);
       if (first_alert >= 0) tally.delays.push_back(first_alert - s.onset);
     }
   }
+}
+
+// Detection at a matched false-positive rate: the bound's threshold on the
+// p-value is moved until this configuration alerts in at most `null_alerts`
+// scored null weeks (the count plain had at the configured alpha), and each
+// outbreak counts as detected when its smallest p-value is below it. Per
+// outbreak series, 1 or 0, for a paired comparison. Only for configurations
+// whose fits do not depend on alpha (not alerted_weight < 1) and that judge
+// by the bound alone.
+std::vector<double> detected_at(const Tally& t, std::size_t null_alerts) {
+  std::vector<double> p = t.null_week_p;
+  std::sort(p.begin(), p.end());
+  const double threshold = null_alerts < p.size() ? p[null_alerts] : 1.0;  // alert when p < threshold
+  std::vector<double> out;
+  for (double m : t.outbreak_min_p) out.push_back(m < threshold ? 1 : 0);
+  return out;
+}
+
+std::size_t alerted_null_weeks(const Tally& t, double alpha) {
+  return static_cast<std::size_t>(
+      std::count_if(t.null_week_p.begin(), t.null_week_p.end(), [&](double p) { return p <= alpha; }));
 }
 
 double median(std::vector<int> v) {
@@ -255,7 +308,7 @@ std::string show_arl(const Tally& t) {
 }  // namespace
 
 int main(int argc, char** argv) {
-  int n = 100, arl_series = 0, only = -1;
+  int n = 100, arl_series = 0, only = -1, past = 0;
   std::string wanted;  // comma-separated configuration names; empty: all
   std::uint64_t seed = 2013;
   glm::Family family = glm::Family::quasipoisson;
@@ -264,6 +317,7 @@ int main(int argc, char** argv) {
     if (k == "--series") n = std::atoi(v.c_str());
     else if (k == "--seed") seed = std::strtoull(v.c_str(), nullptr, 10);
     else if (k == "--arl-series") arl_series = std::atoi(v.c_str());
+    else if (k == "--past-outbreaks") past = std::atoi(v.c_str());
     else if (k == "--scenario") only = std::atoi(v.c_str());
     else if (k == "--configs") wanted = "," + v + ",";
     else if (k == "--family" && (v == "quasipoisson" || v == "negbin"))
@@ -271,7 +325,7 @@ int main(int argc, char** argv) {
     else {
       std::fprintf(stderr,
                    "usage: detection_eval [--series N] [--seed S] [--arl-series M] [--family quasipoisson|negbin] "
-                   "[--scenario I] [--configs a,b]\n");
+                   "[--scenario I] [--configs a,b] [--past-outbreaks K]\n");
       return 1;
     }
   }
@@ -290,18 +344,19 @@ int main(int argc, char** argv) {
       {"resistant+shift", true, 1.0, true, false},
       {"resistant+low_run", true, 1.0, false, true},
   };
-  std::printf("family %s, %d null + %d outbreak series per scenario, seed %llu; 95%% intervals in brackets\n",
-              family == glm::Family::negbin ? "negbin" : "quasipoisson", n, n, static_cast<unsigned long long>(seed));
+  std::printf("family %s, %d null + %d outbreak series per scenario, seed %llu, %d past outbreaks per series in the "
+              "training years; 95%% intervals in brackets\n",
+              family == glm::Family::negbin ? "negbin" : "quasipoisson", n, n, static_cast<unsigned long long>(seed), past);
   std::printf("%-3s %-48s %-20s %-28s %-21s %-21s %6s\n", "#", "scenario", "config", "FPR/week", "POD", "sens", "delay");
-  std::vector<std::string> paired_lines, arl_lines;
+  std::vector<std::string> paired_lines, matched_lines, arl_lines;
   const int count = static_cast<int>(sizeof scenarios / sizeof scenarios[0]);
   for (int si = 0; si < count; ++si) {
     if (only >= 0 && si != only) continue;
     const Scenario& sc = scenarios[si];
     bounds::Rng rng(seed * 1000 + static_cast<std::uint64_t>(si));
     std::vector<Series> data;
-    for (int i = 0; i < n; ++i) data.push_back(simulate(sc, false, rng));
-    for (int i = 0; i < n; ++i) data.push_back(simulate(sc, true, rng));
+    for (int i = 0; i < n; ++i) data.push_back(simulate(sc, false, rng, past));
+    for (int i = 0; i < n; ++i) data.push_back(simulate(sc, true, rng, past));
     Tally plain;
     for (const Config& cfg : configs) {
       const bool relevant = (sc.kind == Scenario::silent) ? (std::string(cfg.name) == "plain" || cfg.low_run || cfg.shift)
@@ -319,6 +374,17 @@ int main(int argc, char** argv) {
         plain = t;
         continue;
       }
+      if (!cfg.shift && !cfg.low_run && cfg.alerted_weight == 1.0 && !plain.null_week_p.empty()) {
+        const std::size_t k = alerted_null_weeks(plain, 0.001);
+        const std::vector<double> mine = detected_at(t, k), theirs = detected_at(plain, k);
+        char line[256];
+        std::snprintf(line, sizeof line, "%-3d %-48s %-20s at <= %zu of %zu null weeks alerted: POD %s vs plain %s, dPOD %s",
+                      si, sc.name, cfg.name, k, t.null_week_p.size(),
+                      show(ratio(mine, std::vector<double>(mine.size(), 1.0)), "%.3f").c_str(),
+                      show(ratio(theirs, std::vector<double>(theirs.size(), 1.0)), "%.3f").c_str(),
+                      show(paired(mine, theirs), "%+.3f").c_str());
+        matched_lines.push_back(line);
+      }
       char line[256];
       std::snprintf(line, sizeof line, "%-3d %-48s %-20s dPOD %-27s dFPR %-30s ARL(shift) %s", si, sc.name, cfg.name,
                     show(paired(t.detected, plain.detected), "%+.3f").c_str(),
@@ -333,7 +399,7 @@ int main(int argc, char** argv) {
       // Only null series: the realised in-control run length of the CUSUM.
       bounds::Rng arl_rng(seed * 1000 + 500 + static_cast<std::uint64_t>(si));
       std::vector<Series> nulls;
-      for (int i = 0; i < arl_series; ++i) nulls.push_back(simulate(sc, false, arl_rng));
+      for (int i = 0; i < arl_series; ++i) nulls.push_back(simulate(sc, false, arl_rng, past));
       Tally t;
       run(sc, configs[3], family, nulls, t);
       char line[512];
@@ -349,6 +415,9 @@ int main(int argc, char** argv) {
   }
   std::printf("\npaired against plain on the same series (dPOD: detected; dFPR: per-series alert-week rate)\n");
   for (const std::string& l : paired_lines) std::printf("%s\n", l.c_str());
+  std::printf("\nat a matched false-positive rate (the bound's p-value threshold moved until the configuration alerts in "
+              "no more null weeks than plain at alpha 0.001)\n");
+  for (const std::string& l : matched_lines) std::printf("%s\n", l.c_str());
   if (!arl_lines.empty()) {
     std::printf("\nshift CUSUM (factor 2, high side; low side for the silent trap), resistant baseline\n");
     for (const std::string& l : arl_lines) std::printf("%s\n", l.c_str());

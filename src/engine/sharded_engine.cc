@@ -86,6 +86,12 @@ EngineCounters ShardedEngine::counters() const {
     total.warming_up += c.warming_up;
     total.alerts_high += c.alerts_high;
     total.alerts_low += c.alerts_low;
+    total.alerts_shift += c.alerts_shift;
+    total.alerts_low_run += c.alerts_low_run;
+    total.alerts_fdr += c.alerts_fdr;
+    total.alerts_silence += c.alerts_silence;
+    total.silence_ends += c.silence_ends;
+    total.duplicates_replaced += c.duplicates_replaced;
     for (std::size_t r = 0; r < kRejectReasonCount; ++r) total.rejected.by_reason[r] += c.rejected.by_reason[r];
   }
   return total;

@@ -88,7 +88,13 @@ ParseOutcome CsvParser::parse(std::string_view line, const SourcePos& where) {
                                        std::to_string(column_count_) + ": " + quote_value(line)));
 
   Observation obs;
-  if (FieldCheck f = read_time(fields_[time_], obs.time)) return ParseOutcome::of(reject(std::move(*f), where));
+  if (const std::string_view time_text = fields_[time_]; time_text == last_time_text_ && !time_text.empty()) {
+    obs.time = last_time_;
+  } else {
+    if (FieldCheck f = read_time(time_text, obs.time)) return ParseOutcome::of(reject(std::move(*f), where));
+    last_time_text_.assign(time_text);
+    last_time_ = obs.time;
+  }
   if (FieldCheck f = check_series(fields_[series_])) return ParseOutcome::of(reject(std::move(*f), where));
   if (FieldCheck f = read_count(fields_[count_], obs.count)) return ParseOutcome::of(reject(std::move(*f), where));
   if (exposure_ != kNoColumn)

@@ -21,6 +21,7 @@
 
 #include "core/observation.h"
 #include "core/result.h"
+#include "core/time.h"
 #include "feed/csv_fields.h"
 #include "feed/parse_outcome.h"
 
@@ -59,6 +60,10 @@ class CsvParser {
   std::size_t exposure_ = kNoColumn;
   std::vector<CovariateColumn> covariates_;
   CsvFields fields_;
+  // The last time text that parsed, and its value: the lines of one check
+  // (every trap at the same time) share it, so most lines skip the parse.
+  std::string last_time_text_;
+  TimePoint last_time_{};
 
   static constexpr std::size_t kNoColumn = static_cast<std::size_t>(-1);
 };

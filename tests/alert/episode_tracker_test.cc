@@ -115,7 +115,7 @@ TEST_CASE("episodes of the two directions and of other series are independent", 
   CHECK(f.tracker.open_count() == 0);
 }
 
-TEST_CASE("a record alerting in both directions closes neither; close_after 1 closes at the next quiet record",
+TEST_CASE("a record alerting in both directions closes neither, close_after 1 closes at the next quiet record",
           "[alert][episodes]") {
   Feed f;
   f.close_after = 1;

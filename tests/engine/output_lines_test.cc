@@ -34,7 +34,7 @@ SettingsTable poisson_settings() {
 
 }  // namespace
 
-TEST_CASE("two spikes make one episode; three counts within bounds close it", "[engine][episodes]") {
+TEST_CASE("two spikes make one episode, three counts within bounds close it", "[engine][episodes]") {
   const SettingsTable settings = poisson_settings();
   Engine engine(settings);
   bounds::Rng rng(11);

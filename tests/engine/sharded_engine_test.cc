@@ -42,6 +42,8 @@ SettingsTable settings(bounds::Method method) {
   t.defaults.alert.method = method;
   t.defaults.alert.draws = 500;
   t.defaults.alert.alpha = 0.01;
+  // The shift CUSUM too, so that its alerts and counters are compared as well.
+  t.defaults.detect.shift = true;
   return t;
 }
 
@@ -56,6 +58,9 @@ void check_same(const IngestResult& a, const IngestResult& b) {
   }
   REQUIRE(a.alert.has_value() == b.alert.has_value());
   if (a.alert) CHECK(a.alert->side == b.alert->side);
+  REQUIRE(a.detector_alerts.size() == b.detector_alerts.size());
+  for (std::size_t i = 0; i < a.detector_alerts.size(); ++i)
+    CHECK(a.detector_alerts[i].detector == b.detector_alerts[i].detector);
   REQUIRE(a.rejection.has_value() == b.rejection.has_value());
   if (a.rejection) {
     CHECK(a.rejection->reason == b.rejection->reason);
@@ -78,6 +83,7 @@ TEST_CASE("sharded results equal one engine's, in input order, for any worker co
     for (const Observation& o : feed) want.push_back(single.ingest(o));
     REQUIRE(single.counters().alerts_high > 0);
     REQUIRE(single.counters().rejected[RejectReason::too_many_series] > 0);
+    REQUIRE(single.counters().alerts_shift > 0);
 
     for (const int workers : {1, 2, 3}) {
       INFO("method " << bounds::to_string(method) << " workers " << workers);
@@ -99,6 +105,8 @@ TEST_CASE("sharded results equal one engine's, in input order, for any worker co
       CHECK(a.warming_up == b.warming_up);
       CHECK(a.alerts_high == b.alerts_high);
       CHECK(a.alerts_low == b.alerts_low);
+      CHECK(a.alerts_shift == b.alerts_shift);
+      CHECK(a.alerts_low_run == b.alerts_low_run);
       CHECK(a.rejected.by_reason == b.rejected.by_reason);
       CHECK(sharded.series_count() == single.series_count());
       CHECK(sharded.find("site-0") != nullptr);

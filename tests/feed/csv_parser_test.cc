@@ -39,6 +39,26 @@ TEST_CASE("CSV header names the columns in any order", "[feed][csv]") {
   CHECK(r.where.line == 2);
 }
 
+TEST_CASE("CSV lines sharing a time text each get that time, a bad time after a good one is refused",
+          "[feed][csv]") {
+  CsvParser p = header("time,series,count");
+  // 2025-06-01T06:00:00Z = 1748757600 (as in the test above); +10 min = 1748758200.
+  const char* lines[] = {"2025-06-01T06:00:00Z,a,1", "2025-06-01T06:00:00Z,b,2", "2025-06-01T06:10:00Z,a,3",
+                         "2025-06-01T06:00:00Z,b,4"};
+  const long expected[] = {1748757600, 1748757600, 1748758200, 1748757600};
+  for (int i = 0; i < 4; ++i) {
+    ParseOutcome o = p.parse(lines[i], SourcePos{"traps.csv", static_cast<std::uint64_t>(i + 2)});
+    REQUIRE(o.kind() == LineKind::record);
+    CHECK(o.record().time.time_since_epoch().count() == expected[i]);
+  }
+  ParseOutcome bad = p.parse("2025-06-01T06:00:00,b,5", SourcePos{"traps.csv", 6});
+  REQUIRE(bad.kind() == LineKind::rejected);
+  CHECK(bad.rejection().reason == RejectReason::bad_time);
+  ParseOutcome again = p.parse("2025-06-01T06:00:00Z,b,6", SourcePos{"traps.csv", 7});
+  REQUIRE(again.kind() == LineKind::record);
+  CHECK(again.record().time.time_since_epoch().count() == 1748757600);
+}
+
 TEST_CASE("CSV header errors name the source and what is wrong", "[feed][csv]") {
   CHECK(header_error("time,series,trap_nights") ==
         "traps.csv:3: CSV header lacks column 'count' (it has 'time', 'series', 'trap_nights'); "

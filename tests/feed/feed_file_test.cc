@@ -58,7 +58,7 @@ const std::string kCsv =
     "2025-06-01T12:00:00Z,trap-1,3,1\n"
     "2025-06-01T13:00:00Z,tr\xFF\x61p,3,1,2\n"
     "\n"
-    "2025-06-01T14:00:00Z,\"trap 2, south\",4,,\n";
+    "2025-06-01T14:00:00Z,\"trap 2, south\",4,1,\n";
 
 std::vector<std::string> csv_expected(const std::string& p) {
   return {
@@ -109,7 +109,7 @@ std::vector<std::string> jsonl_expected(const std::string& p) {
   };
 }
 
-TEST_CASE("feed file: every CSV refusal names file, line and value; good lines around it survive",
+TEST_CASE("feed file: every CSV refusal names file, line and value, good lines around it survive",
           "[feed][file]") {
   TempDir dir;
   const std::string path = dir.write("north.csv", kCsv);
@@ -118,7 +118,7 @@ TEST_CASE("feed file: every CSV refusal names file, line and value; good lines a
   CHECK(read_path(path, options) == csv_expected(path));
 }
 
-TEST_CASE("feed file: every JSON Lines refusal names file, line and value; good lines around it survive",
+TEST_CASE("feed file: every JSON Lines refusal names file, line and value, good lines around it survive",
           "[feed][file]") {
   TempDir dir;
   const std::string path = dir.write("south.jsonl", kJsonl);

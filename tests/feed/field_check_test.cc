@@ -67,7 +67,7 @@ TEST_CASE("count must be a whole number >= 0", "[feed][field]") {
   CHECK(count_of("1e999") == "bad_count: count '1e999' is too large");
 }
 
-TEST_CASE("exposure must be a finite number > 0; an empty cell is missing effort", "[feed][field]") {
+TEST_CASE("exposure must be a finite number > 0, an empty cell is missing effort", "[feed][field]") {
   CHECK(exposure_of("") == "missing_exposure: exposure is empty: the effort behind this count is unknown");
   CHECK(exposure_of("2.5") == "ok 2.500000");
   CHECK(exposure_of("1e-3") == "ok 0.001000");

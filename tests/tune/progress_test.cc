@@ -14,7 +14,7 @@ TEST_CASE("time left is written for people", "[tune]") {
   CHECK(format_seconds_left(-1) == "?");
 }
 
-TEST_CASE("a disabled progress line writes nothing; an enabled one draws records/s", "[tune]") {
+TEST_CASE("a disabled progress line writes nothing, an enabled one draws records/s", "[tune]") {
   for (bool enabled : {false, true}) {
     std::FILE* f = std::tmpfile();
     REQUIRE(f);
