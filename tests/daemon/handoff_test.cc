@@ -85,7 +85,7 @@ TEST_CASE("handoff: the bound pauses producers, never refuses read lines, and re
   CHECK(resumed == 2);
 }
 
-TEST_CASE("handoff: close drains what is queued, then ends; later input is not taken", "[daemon][handoff]") {
+TEST_CASE("handoff: close drains what is queued, then ends, and later input is not taken", "[daemon][handoff]") {
   asio::io_context loop;
   Handoff h(loop, 10);
   int resumed = 0;
