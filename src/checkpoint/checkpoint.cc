@@ -2,28 +2,40 @@
 
 #include <fcntl.h>
 #include <sys/stat.h>
+#include <sys/uio.h>
 #include <unistd.h>
 
 #include <cerrno>
 #include <cstring>
 #include <filesystem>
-#include <fstream>
-#include <sstream>
 
 #include <fmt/format.h>
 
+#include "checkpoint/format4.h"
+#include "checkpoint/parts.h"
 #include "core/state_codec.h"
 
 namespace tallyd::checkpoint {
 namespace {
 
-std::uint64_t fnv1a(std::string_view bytes) {
-  std::uint64_t h = 14695981039346656037ull;
-  for (unsigned char c : bytes) {
-    h ^= c;
-    h *= 1099511628211ull;
-  }
-  return h;
+// The two sections of a format-5 file.
+struct Sections {
+  std::string head;  // text
+  std::string body;  // binary
+};
+
+Sections make_sections(const Engine& engine, const Marks& marks) {
+  StateWriter head;
+  save_marks(head, marks);
+  // For people reading the file; decode checks them against the body.
+  head.tag("counts");
+  head.u64(engine.series_count());
+  head.u64(engine.counters().records);
+  head.u64(engine.held_count());
+  head.newline();
+  StateWriter body(StateLayout::binary);
+  engine.save_state(body);
+  return {head.take(), body.take()};
 }
 
 Status write_all(int fd, std::string_view data, const std::string& path) {
@@ -38,38 +50,78 @@ Status write_all(int fd, std::string_view data, const std::string& path) {
   return Ok{};
 }
 
+Result<Restored> decode_format5(std::string_view rest, std::string_view name, const SettingsTable& settings,
+                                EngineLimits limits, detect::FdrSpec fdr) {
+  auto head_bytes = take_section(rest, "head", name);
+  if (!head_bytes) return head_bytes.error();
+  auto body_bytes = take_section(rest, "body", name);
+  if (!body_bytes) return body_bytes.error();
+  if (rest != kEndLine) {
+    if (rest.size() < kEndLine.size() && kEndLine.substr(0, rest.size()) == rest)
+      return Error{fmt::format("{}: checkpoint is truncated (no end line); refusing to load it", name)};
+    return Error{fmt::format("{}: checkpoint is corrupt ({} unexpected bytes after its last section); "
+                             "refusing to load it",
+                             name, rest.size())};
+  }
+
+  // Sound as far as the checksums can tell: now the content must fit this build and config.
+  auto mismatch = [&](std::string_view section, const std::string& what) {
+    return Error{fmt::format("{}: checkpoint does not match this build or config ({} section, {}); "
+                             "refusing to load it",
+                             name, section, what)};
+  };
+  StateReader head(*head_bytes);
+  Restored out;
+  out.marks = load_marks(head);
+  head.expect("counts");
+  const std::uint64_t series = head.u64(), records = head.u64(), held = head.u64();
+  if (!head.failed() && !head.at_end()) head.fail("unexpected data after the counts");
+  if (head.failed()) return mismatch("head", head.error());
+
+  StateReader body(*body_bytes, StateLayout::binary);
+  out.engine = std::make_unique<Engine>(settings, limits, fdr);
+  out.engine->load_state(body);
+  if (!body.failed() && !body.at_end()) body.fail("unexpected data after the engine state");
+  if (body.failed()) return mismatch("body", body.error());
+  if (out.engine->series_count() != series || out.engine->counters().records != records ||
+      out.engine->held_count() != held)
+    return mismatch("head", fmt::format("its counts say {} series, {} records, {} held; the body has {}, {}, {}",
+                                        series, records, held, out.engine->series_count(),
+                                        out.engine->counters().records, out.engine->held_count()));
+  return out;
+}
+
 }  // namespace
 
 std::string encode(const Engine& engine, const Marks& marks) {
-  StateWriter w;
-  w.tag("marks");
-  w.u64(marks.alert_log_bytes);
-  w.i64(marks.written_unix);
-  w.u64(marks.files.size());
-  w.newline();
-  for (const FileMark& f : marks.files) {
-    w.tag("file");
-    w.str(f.path);
-    w.u64(f.device);
-    w.u64(f.inode);
-    w.u64(f.offset);
-    w.u64(f.line);
-    w.i64(f.format);
-    w.str(f.header);
-    w.newline();
-  }
-  engine.save_state(w);
-  w.newline();
-  std::string body = w.take();
-  return fmt::format("{}\n{}seal {:016x} {}\n", kFirstLine, body, fnv1a(body), body.size());
+  const Sections s = make_sections(engine, marks);
+  std::string out;
+  out.reserve(kFirstLine.size() + s.head.size() + s.body.size() + 100);
+  out += kFirstLine;
+  out += '\n';
+  out += section_line("head", s.head);
+  out += s.head;
+  out += section_line("body", s.body);
+  out += s.body;
+  out += kEndLine;
+  return out;
+}
+
+std::string encode_format4(const Engine& engine, const Marks& marks) {
+  return std::string(kFormat4Line) + "\n" + format4_rest(engine, marks);
 }
 
 Status write_file(const std::string& path, const Engine& engine, const Marks& marks) {
-  const std::string text = encode(engine, marks);
+  const Sections s = make_sections(engine, marks);
+  const std::string first = std::string(kFirstLine) + "\n" + section_line("head", s.head);
+  const std::string body_line = section_line("body", s.body);
   const std::string tmp = path + ".tmp";
   int fd = ::open(tmp.c_str(), O_WRONLY | O_CREAT | O_TRUNC | O_CLOEXEC, 0644);
   if (fd < 0) return Error{fmt::format("{}: cannot create checkpoint: {}", tmp, std::strerror(errno))};
-  Status st = write_all(fd, text, tmp);
+  Status st = Ok{};
+  for (std::string_view piece : {std::string_view(first), std::string_view(s.head), std::string_view(body_line),
+                                 std::string_view(s.body), kEndLine})
+    if (st) st = write_all(fd, piece, tmp);
   if (st && ::fsync(fd) != 0) st = Error{fmt::format("{}: fsync failed: {}", tmp, std::strerror(errno))};
   ::close(fd);
   if (!st) return st;
@@ -89,85 +141,45 @@ Status write_file(const std::string& path, const Engine& engine, const Marks& ma
 Result<Restored> decode(std::string_view text, std::string_view name, const SettingsTable& settings,
                         EngineLimits limits, detect::FdrSpec fdr) {
   const std::size_t eol = text.find('\n');
-  if (eol == std::string_view::npos || text.substr(0, eol) != kFirstLine) {
-    const std::string_view first = text.substr(0, std::min<std::size_t>(eol, 60));
-    // An older or newer tallyd's checkpoint is named as such: the operator
-    // decides whether to start fresh (--fresh) or run the version that wrote it.
-    const bool other_version = first.substr(0, 18) == "tallyd-checkpoint ";
-    return Error{fmt::format("{}: not a tallyd checkpoint of format version 4 (first line is '{}'); "
-                             "refusing to load it{}",
-                             name, first,
-                             other_version ? " (it was written by another tallyd version, whose state this one "
-                                             "cannot carry over)"
-                                           : "")};
-  }
-  // The seal is the last line; anything cut short has none (or a wrong one).
-  std::string_view rest = text.substr(eol + 1);
-  const std::size_t seal_at = rest.rfind("seal ");
-  if (seal_at == std::string_view::npos || rest.empty() || rest.back() != '\n' ||
-      (seal_at > 0 && rest[seal_at - 1] != '\n'))
-    return Error{fmt::format("{}: checkpoint is truncated (no seal line at its end); refusing to load it", name)};
-  std::string_view body = rest.substr(0, seal_at);
-  StateReader seal(rest.substr(seal_at));
-  seal.expect("seal");
-  const std::string_view hex = rest.substr(seal_at + 5, 16);
-  std::uint64_t sum = 0;
-  bool hex_ok = hex.size() == 16;
-  for (char c : hex) {
-    const int v = (c >= '0' && c <= '9') ? c - '0' : (c >= 'a' && c <= 'f') ? c - 'a' + 10 : -1;
-    if (v < 0) hex_ok = false;
-    sum = sum * 16 + static_cast<std::uint64_t>(v < 0 ? 0 : v);
-  }
-  StateReader len_reader(rest.substr(std::min(rest.size(), seal_at + 5 + 16)));
-  const std::uint64_t len = len_reader.u64();
-  if (!hex_ok || len_reader.failed() || !len_reader.at_end())
-    return Error{fmt::format("{}: checkpoint seal line is damaged; refusing to load it", name)};
-  if (len != body.size())
-    return Error{fmt::format("{}: checkpoint is truncated or damaged ({} body bytes, the seal says {}); "
-                             "refusing to load it",
-                             name, body.size(), len)};
-  if (fnv1a(body) != sum)
-    return Error{fmt::format("{}: checkpoint is corrupt (checksum mismatch); refusing to load it", name)};
-
-  StateReader r(body);
-  Restored out;
-  r.expect("marks");
-  out.marks.alert_log_bytes = r.u64();
-  out.marks.written_unix = r.i64();
-  const std::uint64_t nfiles = r.u64();
-  if (nfiles > 100000) r.fail("too many file marks");
-  for (std::uint64_t i = 0; i < nfiles && !r.failed(); ++i) {
-    FileMark f;
-    r.expect("file");
-    f.path = r.str();
-    f.device = r.u64();
-    f.inode = r.u64();
-    f.offset = r.u64();
-    f.line = r.u64();
-    f.format = static_cast<int>(r.i64());
-    f.header = r.str();
-    if (f.format < -1 || f.format > 1) r.fail("bad file format code");
-    out.marks.files.push_back(std::move(f));
-  }
-  out.engine = std::make_unique<Engine>(settings, limits, fdr);
-  out.engine->load_state(r);
-  if (!r.failed() && !r.at_end()) r.fail("unexpected data after the engine state");
-  if (r.failed())
-    return Error{fmt::format("{}: checkpoint does not match this build or config ({}); refusing to load it", name,
-                             r.error())};
-  return out;
+  const std::string_view first = text.substr(0, eol);
+  if (eol != std::string_view::npos && first == kFirstLine)
+    return decode_format5(text.substr(eol + 1), name, settings, limits, fdr);
+  if (eol != std::string_view::npos && first == kFormat4Line)
+    return decode_format4(text.substr(eol + 1), name, settings, limits, fdr);
+  // An older or newer tallyd's checkpoint is named as such: the operator
+  // decides whether to start fresh (--fresh) or run the version that wrote it.
+  const bool other_version = first.substr(0, 18) == "tallyd-checkpoint ";
+  return Error{fmt::format("{}: not a tallyd checkpoint of format version 4 or 5 (first line is '{}'); "
+                           "refusing to load it{}",
+                           name, first.substr(0, 60),
+                           other_version ? " (it was written by another tallyd version, whose state this one "
+                                           "cannot carry over)"
+                                         : "")};
 }
 
 Result<std::optional<Restored>> read_file(const std::string& path, const SettingsTable& settings,
                                           EngineLimits limits, detect::FdrSpec fdr) {
-  std::ifstream in(path, std::ios::binary);
-  if (!in) {
-    if (!std::filesystem::exists(path)) return std::optional<Restored>{};
-    return Error{fmt::format("{}: cannot read checkpoint", path)};
+  // One read into a buffer of the file's size: a checkpoint can be hundreds of MiB.
+  int fd = ::open(path.c_str(), O_RDONLY | O_CLOEXEC);
+  if (fd < 0) {
+    if (errno == ENOENT) return std::optional<Restored>{};
+    return Error{fmt::format("{}: cannot read checkpoint: {}", path, std::strerror(errno))};
   }
-  std::ostringstream text;
-  text << in.rdbuf();
-  auto r = decode(text.str(), path, settings, limits, fdr);
+  struct stat st {};
+  std::string bytes;
+  int error = ::fstat(fd, &st) == 0 ? 0 : errno;
+  if (error == 0) bytes.resize(static_cast<std::size_t>(st.st_size));
+  std::size_t got = 0;
+  while (error == 0 && got < bytes.size()) {
+    const ssize_t n = ::read(fd, bytes.data() + got, bytes.size() - got);
+    if (n > 0) got += static_cast<std::size_t>(n);
+    else if (n == 0) break;  // shorter than fstat said: decode refuses it as truncated
+    else if (errno != EINTR) error = errno;
+  }
+  bytes.resize(got);
+  ::close(fd);
+  if (error != 0) return Error{fmt::format("{}: cannot read checkpoint: {}", path, std::strerror(error))};
+  auto r = decode(bytes, path, settings, limits, fdr);
   if (!r) return r.error();
   return std::optional<Restored>{std::move(r).value()};
 }

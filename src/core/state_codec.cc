@@ -6,35 +6,95 @@
 #include <fmt/format.h>
 
 namespace tallyd {
+namespace {
+
+void put_leb128(std::string& out, std::uint64_t v) {
+  while (v >= 0x80) {
+    out += static_cast<char>((v & 0x7f) | 0x80);
+    v >>= 7;
+  }
+  out += static_cast<char>(v);
+}
+
+std::uint64_t zigzag(std::int64_t v) {
+  return (static_cast<std::uint64_t>(v) << 1) ^ static_cast<std::uint64_t>(v >> 63);
+}
+
+std::int64_t unzigzag(std::uint64_t v) {
+  return static_cast<std::int64_t>(v >> 1) ^ -static_cast<std::int64_t>(v & 1);
+}
+
+}  // namespace
+
+std::uint8_t tag_byte(std::string_view word) {
+  // FNV-1a folded to a byte: distinct for the tags that follow one another.
+  std::uint32_t h = 2166136261u;
+  for (unsigned char c : word) h = (h ^ c) * 16777619u;
+  return static_cast<std::uint8_t>(h ^ (h >> 8) ^ (h >> 16) ^ (h >> 24));
+}
 
 void StateWriter::sep() {
   if (!out_.empty() && out_.back() != '\n') out_ += ' ';
 }
 
 void StateWriter::tag(std::string_view word) {
+  if (binary_) {
+    out_ += static_cast<char>(tag_byte(word));
+    return;
+  }
   sep();
   out_ += word;
 }
 
 void StateWriter::u64(std::uint64_t v) {
+  if (binary_) return put_leb128(out_, v);
   sep();
   out_ += fmt::format("{}", v);
 }
 
 void StateWriter::i64(std::int64_t v) {
+  if (binary_) return put_leb128(out_, zigzag(v));
   sep();
   out_ += fmt::format("{}", v);
 }
 
 void StateWriter::f64(double v) {
+  if (binary_) {
+    const std::uint64_t bits = std::bit_cast<std::uint64_t>(v);
+    char le[8];
+    for (int i = 0; i < 8; ++i) le[i] = static_cast<char>(bits >> (8 * i));
+    out_.append(le, 8);
+    return;
+  }
   sep();
   out_ += fmt::format("d{:016x}", std::bit_cast<std::uint64_t>(v));
 }
 
 void StateWriter::str(std::string_view s) {
+  if (binary_) {
+    put_leb128(out_, s.size());
+    out_ += s;
+    return;
+  }
   sep();
   out_ += fmt::format("{}:", s.size());
   out_ += s;
+}
+
+std::uint64_t StateReader::leb128() {
+  if (failed()) return 0;
+  std::uint64_t v = 0;
+  for (int shift = 0; shift < 64; shift += 7) {
+    if (pos_ == text_.size()) {
+      fail("unexpected end of state");
+      return 0;
+    }
+    const auto byte = static_cast<std::uint8_t>(text_[pos_++]);
+    v |= static_cast<std::uint64_t>(byte & 0x7f) << shift;
+    if ((byte & 0x80) == 0) return v;
+  }
+  fail("integer longer than 10 bytes");
+  return 0;
 }
 
 void StateReader::skip_space() {
@@ -42,7 +102,7 @@ void StateReader::skip_space() {
 }
 
 bool StateReader::at_end() {
-  skip_space();
+  if (!binary_) skip_space();
   return pos_ == text_.size();
 }
 
@@ -60,11 +120,20 @@ std::string_view StateReader::token() {
 }
 
 void StateReader::expect(std::string_view word) {
+  if (binary_) {
+    if (failed()) return;
+    if (pos_ == text_.size()) return fail("unexpected end of state");
+    if (static_cast<std::uint8_t>(text_[pos_]) != tag_byte(word))
+      return fail(fmt::format("expected the mark of '{}'", word));
+    ++pos_;
+    return;
+  }
   std::string_view t = token();
   if (!failed() && t != word) fail(fmt::format("expected '{}', found '{}'", word, t.substr(0, 40)));
 }
 
 std::uint64_t StateReader::u64() {
+  if (binary_) return leb128();
   std::string_view t = token();
   std::uint64_t v = 0;
   if (failed()) return 0;
@@ -74,6 +143,7 @@ std::uint64_t StateReader::u64() {
 }
 
 std::int64_t StateReader::i64() {
+  if (binary_) return unzigzag(leb128());
   std::string_view t = token();
   std::int64_t v = 0;
   if (failed()) return 0;
@@ -83,6 +153,17 @@ std::int64_t StateReader::i64() {
 }
 
 double StateReader::f64() {
+  if (binary_) {
+    if (failed()) return 0;
+    if (text_.size() - pos_ < 8) {
+      fail("unexpected end of state");
+      return 0;
+    }
+    std::uint64_t bits = 0;
+    for (int i = 0; i < 8; ++i) bits |= static_cast<std::uint64_t>(static_cast<std::uint8_t>(text_[pos_ + i])) << (8 * i);
+    pos_ += 8;
+    return std::bit_cast<double>(bits);
+  }
   std::string_view t = token();
   if (failed()) return 0;
   std::uint64_t bits = 0;
@@ -100,6 +181,17 @@ double StateReader::f64() {
 
 std::string StateReader::str() {
   if (failed()) return {};
+  if (binary_) {
+    const std::uint64_t len = leb128();
+    if (failed()) return {};
+    if (len > text_.size() - pos_) {
+      fail("string runs past the end of the state");
+      return {};
+    }
+    std::string s(text_.substr(pos_, len));
+    pos_ += len;
+    return s;
+  }
   skip_space();
   const std::size_t colon = text_.find(':', pos_);
   if (colon == std::string_view::npos || colon - pos_ > 20) {

@@ -1,8 +1,10 @@
-// StateWriter / StateReader: the token layout shared by every piece of saved
-// state (series models, engine, checkpoint file).
+// StateWriter / StateReader: the two layouts shared by every piece of saved
+// state (series models, engine, checkpoint file). The code that saves or
+// loads a piece of state is the same for both; only the encoding differs.
 //
-// Layout: whitespace-separated tokens, written one logical item per line for
-// people reading a checkpoint with `less`:
+// Text layout (checkpoint format 4, and the readable head of format 5):
+// whitespace-separated tokens, one logical item per line for people reading
+// a checkpoint with `less`:
 //   unsigned / signed integers   decimal ("42", "-7")
 //   doubles                      "d" + 16 lower-case hex digits of the IEEE-754
 //                                bit pattern ("d3ff0000000000000" is 1.0), so a
@@ -10,7 +12,21 @@
 //                                NaN payloads and signed zeros included
 //   strings                      "<byte length>:" then the raw bytes (any bytes)
 //   tags                         a bare word checked on reading ("series", "fit")
-// Reading never throws: the first mismatch sets an error naming the token
+//
+// Binary layout (the bulk section of checkpoint format 5), byte order fixed
+// (little-endian) whatever the host's:
+//   unsigned integers   LEB128: 7 bits a byte, low bits first, the top bit
+//                       set on every byte but the last (1 byte below 128,
+//                       at most 10)
+//   signed integers     zigzag (0, -1, 1, -2 ... map to 0, 1, 2, 3 ...), then LEB128
+//   doubles             the 8 bytes of the IEEE-754 bit pattern, little-endian
+//   strings             LEB128 byte length, then the raw bytes
+//   tags                1 byte derived from the word (tag_byte), checked on
+//                       reading: it catches a reader out of step, not damage
+//                       (the checkpoint's checksums do that)
+//   newline             nothing
+//
+// Reading never throws: the first mismatch sets an error naming the byte
 // position, and every later read returns a zero value.
 #pragma once
 
@@ -20,28 +36,38 @@
 
 namespace tallyd {
 
+enum class StateLayout { text, binary };
+
 class StateWriter {
  public:
+  explicit StateWriter(StateLayout layout = StateLayout::text) : binary_(layout == StateLayout::binary) {}
+
+  bool binary() const { return binary_; }
   void tag(std::string_view word);
   void u64(std::uint64_t v);
   void i64(std::int64_t v);
   void f64(double v);
   void str(std::string_view s);
   void boolean(bool b) { u64(b ? 1 : 0); }
-  void newline() { out_ += '\n'; }
+  void newline() {
+    if (!binary_) out_ += '\n';
+  }
 
   const std::string& text() const { return out_; }
   std::string take() { return std::move(out_); }
 
  private:
   void sep();
+  bool binary_;
   std::string out_;
 };
 
 class StateReader {
  public:
-  explicit StateReader(std::string_view text) : text_(text) {}
+  explicit StateReader(std::string_view text, StateLayout layout = StateLayout::text)
+      : text_(text), binary_(layout == StateLayout::binary) {}
 
+  bool binary() const { return binary_; }
   // Fails unless the next token is exactly `word`.
   void expect(std::string_view word);
   std::uint64_t u64();
@@ -54,15 +80,20 @@ class StateReader {
   void fail(std::string what);
   bool failed() const { return !error_.empty(); }
   const std::string& error() const { return error_; }
-  // True when only whitespace is left.
+  // True when nothing is left (text: only whitespace).
   bool at_end();
 
  private:
   std::string_view token();
   void skip_space();
+  std::uint64_t leb128();
   std::string_view text_;
+  bool binary_;
   std::size_t pos_ = 0;
   std::string error_;
 };
+
+// The byte a binary tag is written as.
+std::uint8_t tag_byte(std::string_view word);
 
 }  // namespace tallyd

@@ -27,12 +27,20 @@ void add_note(std::string& note, const std::string& text) {
   note += text;
 }
 
-// The records a fit uses: positive prior weight and finite, valid values.
-struct UsedRecords {
+// Copies of the records a fit uses, made only when some are left out.
+struct RecordCopies {
   Eigen::MatrixXd X;
-  Eigen::VectorXd y;
-  Eigen::VectorXd offset;
-  Eigen::VectorXd w;
+  Eigen::VectorXd y, offset, w;
+};
+
+// The records a fit uses: positive prior weight and finite, valid values.
+// The references point at the caller's arrays when every record is used
+// (the usual case, which then costs no copy), else at a RecordCopies.
+struct UsedRecords {
+  const Eigen::MatrixXd& X;
+  const Eigen::VectorXd& y;
+  const Eigen::VectorXd& offset;
+  const Eigen::VectorXd& w;
   std::vector<Eigen::Index> row;  // index in the caller's arrays
   int invalid = 0;                // left out for bad values
   Eigen::Index first_invalid = -1;
@@ -46,30 +54,42 @@ bool record_is_valid(const Eigen::MatrixXd& X, const Eigen::VectorXd& y,
 }
 
 UsedRecords select_records(const Eigen::MatrixXd& X, const Eigen::VectorXd& y,
-                           const Eigen::VectorXd& offset, const Eigen::VectorXd& weights) {
-  UsedRecords u;
+                           const Eigen::VectorXd& offset, const Eigen::VectorXd& weights,
+                           RecordCopies& copies) {
+  std::vector<Eigen::Index> rows;
+  rows.reserve(static_cast<std::size_t>(X.rows()));
+  // The usual case, checked column-wise at once: every record is used.
+  if (X.allFinite() && y.allFinite() && offset.allFinite() && weights.allFinite() &&
+      (y.array() >= 0).all() && (weights.array() > 0).all()) {
+    for (Eigen::Index i = 0; i < X.rows(); ++i) rows.push_back(i);
+    return UsedRecords{X, y, offset, weights, std::move(rows), 0, -1};
+  }
+  int invalid = 0;
+  Eigen::Index first_invalid = -1;
   for (Eigen::Index i = 0; i < X.rows(); ++i) {
     if (weights(i) == 0) continue;  // left out by the caller: its values do not matter
     if (!record_is_valid(X, y, offset, weights, i)) {
-      if (u.first_invalid < 0) u.first_invalid = i;
-      ++u.invalid;
+      if (first_invalid < 0) first_invalid = i;
+      ++invalid;
       continue;
     }
-    u.row.push_back(i);
+    rows.push_back(i);
   }
-  const auto n = static_cast<Eigen::Index>(u.row.size());
-  u.X.resize(n, X.cols());
-  u.y.resize(n);
-  u.offset.resize(n);
-  u.w.resize(n);
+  const auto n = static_cast<Eigen::Index>(rows.size());
+  if (n == X.rows()) return UsedRecords{X, y, offset, weights, std::move(rows), invalid, first_invalid};
+  copies.X.resize(n, X.cols());
+  copies.y.resize(n);
+  copies.offset.resize(n);
+  copies.w.resize(n);
   for (Eigen::Index k = 0; k < n; ++k) {
-    const Eigen::Index i = u.row[static_cast<std::size_t>(k)];
-    u.X.row(k) = X.row(i);
-    u.y(k) = y(i);
-    u.offset(k) = offset(i);
-    u.w(k) = weights(i);
+    const Eigen::Index i = rows[static_cast<std::size_t>(k)];
+    copies.X.row(k) = X.row(i);
+    copies.y(k) = y(i);
+    copies.offset(k) = offset(i);
+    copies.w(k) = weights(i);
   }
-  return u;
+  return UsedRecords{copies.X, copies.y, copies.offset, copies.w, std::move(rows), invalid,
+                     first_invalid};
 }
 
 // Sizes every vector of a result for p columns, with nothing estimated.
@@ -266,7 +286,8 @@ FitResult fit_glm(const Eigen::MatrixXd& X, const Eigen::VectorXd& y, const Eige
     return r;
   }
 
-  UsedRecords u = select_records(X, y, offset, weights);
+  RecordCopies copies;
+  const UsedRecords u = select_records(X, y, offset, weights, copies);
   if (u.invalid > 0) {
     add_note(r.note, fmt::format("{} record(s) with a non-finite or negative value left out "
                                  "(first: record {})",

@@ -58,6 +58,8 @@ struct IrlsOutcome {
 
 // sqrt of the IRLS working weights w * mu_eta(eta)^2 / V(mu), 0 where they
 // are not finite (a mean so small that mu_eta underflows).
+// Precondition: mu = link_inv(link, eta) as the IRLS loop computes it (under
+// the log link mu_eta = exp(eta) is read from mu, not computed again).
 void sqrt_working_weights(Link link, const Distribution& dist, const Eigen::VectorXd& eta,
                           const Eigen::VectorXd& mu, const Eigen::VectorXd& w,
                           Eigen::VectorXd& sqrt_w);

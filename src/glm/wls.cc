@@ -1,13 +1,66 @@
 #include "glm/wls.h"
 
+#include <cmath>
+
 #include <Eigen/Householder>
 
 namespace tallyd::glm {
+
+bool WeightedLeastSquares::solve_normal(const Eigen::MatrixXd& X, const Eigen::VectorXd& z,
+                                        const Eigen::VectorXd& sqrt_w) {
+  const Eigen::Index n = X.rows();
+  const Eigen::Index p = X.cols();
+  if (n < p || p == 0) return false;
+  a_.noalias() = sqrt_w.asDiagonal() * X;
+  b_ = sqrt_w.cwiseProduct(z);
+  // The lower triangle of X'WX, one contiguous dot product per entry: for a
+  // handful of columns this beats a general rank update, which packs the
+  // matrix into blocks first.
+  gram_.resize(p, p);
+  for (Eigen::Index j = 0; j < p; ++j) {
+    for (Eigen::Index i = j; i < p; ++i) gram_(i, j) = a_.col(i).dot(a_.col(j));
+  }
+  const double largest = gram_.diagonal().maxCoeff();
+  const double own_ratio2 = kNormalOwnRatio * kNormalOwnRatio;
+  if (!(largest > 0) || !std::isfinite(largest)) return false;
+  // Cholesky in column order, checking each pivot against its column's own
+  // squared norm (the diagonal of X'WX) before it is used.
+  for (Eigen::Index j = 0; j < p; ++j) {
+    const double own = gram_(j, j);
+    if (!(own > own_ratio2 * largest)) return false;
+    double pivot = own;
+    for (Eigen::Index k = 0; k < j; ++k) pivot -= gram_(j, k) * gram_(j, k);
+    if (!(pivot > kNormalPivotRatio * own)) return false;
+    const double l = std::sqrt(pivot);
+    gram_(j, j) = l;
+    for (Eigen::Index i = j + 1; i < p; ++i) {
+      double v = gram_(i, j);
+      for (Eigen::Index k = 0; k < j; ++k) v -= gram_(i, k) * gram_(j, k);
+      gram_(i, j) = v / l;
+    }
+  }
+  // R = L' is the triangle the QR would give (up to the signs of its rows),
+  // so unscaled_covariance() serves both paths.
+  r_ = gram_.transpose().triangularView<Eigen::Upper>();
+  beta_.noalias() = a_.transpose() * b_;
+  gram_.triangularView<Eigen::Lower>().solveInPlace(beta_);
+  r_.triangularView<Eigen::Upper>().solveInPlace(beta_);
+  kept_.resize(static_cast<std::size_t>(p));
+  for (Eigen::Index j = 0; j < p; ++j) kept_[static_cast<std::size_t>(j)] = j;
+  aliased_.assign(static_cast<std::size_t>(p), false);
+  rank_ = static_cast<int>(p);
+  return true;
+}
 
 int WeightedLeastSquares::solve(const Eigen::MatrixXd& X, const Eigen::VectorXd& z,
                                 const Eigen::VectorXd& sqrt_w, double alias_tolerance) {
   const Eigen::Index n = X.rows();
   const Eigen::Index p = X.cols();
+  // With alias_tolerance at most kNormalOwnRatio (1e-4; the default is 1e-9)
+  // the fast path's bounds are stricter than the QR's, so where it applies
+  // the QR would keep every column too.
+  normal_ = alias_tolerance <= kNormalOwnRatio && solve_normal(X, z, sqrt_w);
+  if (normal_) return rank_;
   a_.noalias() = sqrt_w.asDiagonal() * X;
   b_ = sqrt_w.cwiseProduct(z);
   norms_ = a_.colwise().norm().transpose();

@@ -25,21 +25,33 @@ int coefficient_count(const ModelSpec& spec) {
   return p;
 }
 
-double design_row(const ModelSpec& spec, const DesignInput& in, RowRef row) {
+int season_column_count(const ModelSpec& spec) {
+  int n = 0;
+  for (const Season& s : spec.seasons) n += 2 * s.harmonics;
+  return n;
+}
+
+void season_columns(const ModelSpec& spec, TimePoint time, double* out) {
   int j = 0;
-  row(j++) = 1.0;
-  if (spec.trend) row(j++) = years_between(in.origin, in.time);
-  const double epoch = static_cast<double>(in.time.time_since_epoch().count());
+  const double epoch = static_cast<double>(time.time_since_epoch().count());
   for (const Season& s : spec.seasons) {
     const double period = static_cast<double>(s.period.count());
     // Phase from absolute time, reduced first so the angle stays small and exact.
     const double phase = std::fmod(epoch, period) / period;
     for (int k = 1; k <= s.harmonics; ++k) {
       const double angle = 2.0 * std::numbers::pi * k * phase;
-      row(j++) = std::sin(angle);
-      row(j++) = std::cos(angle);
+      out[j++] = std::sin(angle);
+      out[j++] = std::cos(angle);
     }
   }
+}
+
+double design_row(const ModelSpec& spec, const DesignInput& in, const double* seasons, RowRef row) {
+  int j = 0;
+  row(j++) = 1.0;
+  if (spec.trend) row(j++) = years_between(in.origin, in.time);
+  const int n_seasons = season_column_count(spec);
+  for (int c = 0; c < n_seasons; ++c) row(j++) = seasons[c];
   for (std::size_t c = 0; c < spec.covariates.size(); ++c) row(j++) = in.covariates[c];
 
   switch (spec.link) {
@@ -48,6 +60,20 @@ double design_row(const ModelSpec& spec, const DesignInput& in, RowRef row) {
     case glm::Link::identity: row *= in.exposure; return 0.0;
   }
   return 0.0;
+}
+
+double design_row(const ModelSpec& spec, const DesignInput& in, RowRef row) {
+  // Seasonal columns on the stack for the usual few harmonics.
+  constexpr int kOnStack = 32;
+  const int n_seasons = season_column_count(spec);
+  if (n_seasons <= kOnStack) {
+    double seasons[kOnStack];
+    season_columns(spec, in.time, seasons);
+    return design_row(spec, in, seasons, row);
+  }
+  std::vector<double> seasons(static_cast<std::size_t>(n_seasons));
+  season_columns(spec, in.time, seasons.data());
+  return design_row(spec, in, seasons.data(), row);
 }
 
 }  // namespace tallyd

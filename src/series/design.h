@@ -39,4 +39,14 @@ struct DesignInput {
 // Writes the row into `row` (resized to coefficient_count) and returns the offset.
 double design_row(const ModelSpec& spec, const DesignInput& in, RowRef row);
 
+// The seasonal columns alone (sin and cos of each harmonic of each season,
+// in row order): season_column_count values written to `out`. They depend on
+// the record's time only, so a series can compute them once per record and
+// keep them for its refits; most of design_row's cost is here.
+int season_column_count(const ModelSpec& spec);
+void season_columns(const ModelSpec& spec, TimePoint time, double* out);
+// design_row with the seasonal columns given (as season_columns wrote them):
+// the same row and offset, bit for bit, without the sin/cos.
+double design_row(const ModelSpec& spec, const DesignInput& in, const double* seasons, RowRef row);
+
 }  // namespace tallyd

@@ -5,11 +5,15 @@
 #include <limits>
 
 #include "series/design.h"
+#include "series/resistant_dispersion.h"
 
 namespace tallyd {
 
 SeriesModel::SeriesModel(std::string id, const SeriesSettings& settings)
-    : id_(std::move(id)), settings_(&settings), p_(coefficient_count(settings.model)) {}
+    : id_(std::move(id)),
+      settings_(&settings),
+      p_(coefficient_count(settings.model)),
+      seasons_per_row_(season_column_count(settings.model)) {}
 
 std::optional<std::string> SeriesModel::missing_covariate(const Observation& obs) const {
   for (const std::string& name : settings_->model.covariates)
@@ -77,13 +81,39 @@ Prediction SeriesModel::predict(const Observation& obs, bool allow_screen) const
   return out;
 }
 
+bool SeriesModel::season_cache_ok() const {
+  return season_values_.size() == records_.size() * static_cast<std::size_t>(seasons_per_row_);
+}
+
+void SeriesModel::push_season_values(TimePoint time) {
+  const std::size_t at = season_values_.size();
+  season_values_.resize(at + static_cast<std::size_t>(seasons_per_row_));
+  constexpr int kOnStack = 32;
+  if (seasons_per_row_ <= kOnStack) {
+    double row[kOnStack];
+    season_columns(settings_->model, time, row);
+    std::copy(row, row + seasons_per_row_, season_values_.begin() + static_cast<long>(at));
+    return;
+  }
+  std::vector<double> row(static_cast<std::size_t>(seasons_per_row_));
+  season_columns(settings_->model, time, row.data());
+  std::copy(row.begin(), row.end(), season_values_.begin() + static_cast<long>(at));
+}
+
+void SeriesModel::fill_season_cache() {
+  season_values_.clear();
+  for (const Stored& r : records_) push_season_values(r.time);
+}
+
 void SeriesModel::learn(const Observation& obs, double weight) {
   if (!origin_) origin_ = obs.time;
+  if (!season_cache_ok()) fill_season_cache();  // restored from a checkpoint
   records_.push_back(Stored{obs.time, obs.count, obs.exposure, weight});
   for (const std::string& name : settings_->model.covariates) {
     const double* v = obs.covariate(name);
     covariate_values_.push_back(v ? *v : 0.0);
   }
+  if (seasons_per_row_ > 0) push_season_values(obs.time);
   trim_window(obs.time);
   ++since_refit_;
   if (records_.size() >= min_history() + settings_->model.guard_records &&
@@ -95,9 +125,11 @@ void SeriesModel::learn(const Observation& obs, double weight) {
 void SeriesModel::trim_window(TimePoint latest) {
   const Window& w = settings_->model.window;
   const std::size_t k = settings_->model.covariates.size();
+  const bool cached = season_cache_ok();
   auto drop_front = [&] {
     records_.pop_front();
     covariate_values_.erase(covariate_values_.begin(), covariate_values_.begin() + static_cast<long>(k));
+    if (cached) season_values_.erase(season_values_.begin(), season_values_.begin() + seasons_per_row_);
   };
   if (w.span) {
     while (!records_.empty() && records_.front().time <= latest - *w.span) drop_front();
@@ -116,11 +148,21 @@ void SeriesModel::build_design(Eigen::MatrixXd& X, Eigen::VectorXd& y, Eigen::Ve
   offset.resize(static_cast<Eigen::Index>(n));
   weights.resize(static_cast<Eigen::Index>(n));
   std::vector<double> cov(k);
+  const bool cached = season_cache_ok();
+  const auto s = static_cast<std::size_t>(seasons_per_row_);
+  std::vector<double> seasons(s);
   for (std::size_t i = 0; i < n; ++i) {
     const Stored& r = records_[i];
     for (std::size_t c = 0; c < k; ++c) cov[c] = covariate_values_[i * k + c];
     const auto row = static_cast<Eigen::Index>(i);
-    offset(row) = row_for(r.time, r.exposure, cov.data(), X.row(row));
+    if (!cached) {
+      offset(row) = row_for(r.time, r.exposure, cov.data(), X.row(row));
+    } else {
+      // The same row as row_for, with the seasonal columns kept since learn().
+      for (std::size_t c = 0; c < s; ++c) seasons[c] = season_values_[i * s + c];
+      const DesignInput in{r.time, origin_.value_or(r.time), r.exposure, cov.data()};
+      offset(row) = design_row(settings_->model, in, seasons.data(), X.row(row));
+    }
     y(row) = static_cast<double>(r.count);
     weights(row) = r.weight;
   }
@@ -160,18 +202,28 @@ void SeriesModel::refit() {
     if (resistant.size() > 0) {
       glm::FitResult second = glm::fit_glm(X_, y_, offset_, resistant, options, &result.coefficients, true);
       ++fits_done_;
-      if (second.status == glm::FitStatus::ok) {
-        // The weighted Pearson statistic loses the largest residuals, so the
-        // reweighted quasi-Poisson phi runs low even with no outbreak, and
-        // narrower bounds alarm more often. Keep the larger of the two
-        // dispersions (the mean stays resistant); measured in docs/detection.md.
-        if (settings_->model.family == glm::Family::quasipoisson && second.dispersion > 0 &&
-            result.dispersion > second.dispersion) {
-          second.covariance *= result.dispersion / second.dispersion;
-          second.dispersion = result.dispersion;
-        }
-        result = std::move(second);
-      }
+      if (second.status == glm::FitStatus::ok) result = std::move(second);
+    }
+    // The weighted Pearson statistic of the resistant fit lacks the largest
+    // residuals, so its quasi-Poisson phi runs low even with no outbreak;
+    // divide by the expected shrinkage (series/resistant_dispersion.h). The
+    // factor is an average over windows with and without a down-weighted
+    // record, so it applies to both (with none, the first fit is the
+    // resistant fit). Taking the first fit's phi instead would let past
+    // outbreaks widen every later bound, which the reweighting is there to
+    // prevent.
+    if (settings_->model.family == glm::Family::quasipoisson && result.dispersion > 0) {
+      // At the window's average fitted mean, and at the corrected phi (one
+      // step: the factor moves slowly with phi).
+      const Eigen::VectorXd eta = X_ * result.coefficients + offset_;
+      double mean_sum = 0;
+      for (Eigen::Index i = 0; i < eta.size(); ++i) mean_sum += glm::link_inv(settings_->model.link, eta(i));
+      const double mean = mean_sum / static_cast<double>(eta.size());
+      const double threshold = settings_->model.reweight_threshold;
+      const double rough = result.dispersion / normal_reweighted_dispersion_factor(threshold);
+      const double factor = reweighted_dispersion_factor(threshold, mean, rough);
+      result.covariance /= factor;
+      result.dispersion /= factor;
     }
   }
   if (result.status == glm::FitStatus::ok ||
@@ -203,25 +255,31 @@ Eigen::VectorXd SeriesModel::resistant_weights(const glm::FitResult& fit) const 
   const double threshold = settings_->model.reweight_threshold;
   Eigen::VectorXd w = weights_;
   bool any = false;
-  // Allocated once here rather than per record (the same arithmetic).
-  Eigen::RowVectorXd x(p_);
-  Eigen::VectorXd cx(p_);
+  // The linear predictors and the quadratic forms x' Cov x of all records in
+  // two matrix products, rather than a small product per record.
+  Eigen::VectorXd eta = X_ * fit.coefficients;
+  eta += offset_;
+  const Eigen::MatrixXd xc = X_ * fit.covariance;
+  const Eigen::VectorXd quadratic = xc.cwiseProduct(X_).rowwise().sum();
   for (Eigen::Index i = 0; i < n; ++i) {
     if (weights_(i) <= 0) continue;
-    x = X_.row(i);
-    const double eta = x.dot(fit.coefficients) + offset_(i);
-    const double mu = glm::link_inv(link, eta);
+    const double mu = glm::link_inv(link, eta(i));
     if (!(mu > 1e-12)) continue;
+    const double y = y_(i);
+    // The Anscombe residual has the sign of y - mu: a record at or below its
+    // mean cannot pass a non-negative threshold.
+    if (threshold >= 0 && !(y > mu)) continue;
     const double variance = nb ? mu + mu * mu / fit.theta : mu;
-    const double d = glm::mu_eta(link, eta);
+    // Under the log link d mu / d eta is exp(eta) again: reuse it.
+    const double d = link == glm::Link::log ? mu : glm::mu_eta(link, eta(i));
     // Leverage h = w x' (X'WX)^-1 x with Cov = phi (X'WX)^-1 for quasi-Poisson.
     const double working = weights_(i) * d * d / variance;
-    cx.noalias() = fit.covariance * x.transpose();
-    const double h = std::clamp(working * x.dot(cx) / phi, 0.0, 0.99);
+    const double h = std::clamp(working * quadratic(i) / phi, 0.0, 0.99);
     // Poisson Anscombe residual; its variance is about the dispersion index
-    // (phi, or 1 + mu / theta for NB2).
-    const double y = y_(i);
-    const double anscombe = 1.5 * (std::cbrt(y * y) - std::cbrt(mu * mu)) / std::pow(mu, 1.0 / 6.0);
+    // (phi, or 1 + mu / theta for NB2). mu^(1/6) is the square root of the
+    // square root of mu^(2/3).
+    const double mu23 = std::cbrt(mu * mu);
+    const double anscombe = 1.5 * (std::cbrt(y * y) - mu23) / std::sqrt(std::sqrt(mu23));
     const double index = nb ? 1 + mu / fit.theta : phi;
     const double s = anscombe / std::sqrt(index * (1 - h));
     if (s > threshold) {

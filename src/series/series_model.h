@@ -121,6 +121,15 @@ class SeriesModel {
   std::optional<TimePoint> origin_;   // first accepted record: trend zero
   std::deque<Stored> records_;
   std::deque<double> covariate_values_;  // covariates of records_, flattened (spec order)
+  // The seasonal design columns of records_ (season_columns, flattened), so
+  // that a refit copies them instead of computing sin/cos for the whole
+  // window. Derived from the times, not saved: a restored model (or one that
+  // has none yet) fills it at its next learn().
+  std::deque<double> season_values_;
+  int seasons_per_row_ = 0;  // season_column_count(spec)
+  bool season_cache_ok() const;
+  void fill_season_cache();
+  void push_season_values(TimePoint time);
   std::size_t since_refit_ = 0;
 
   glm::FitResult fit_;

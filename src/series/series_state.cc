@@ -1,5 +1,8 @@
 // Saving and restoring a SeriesModel exactly: a model restored from its saved
 // state makes the same predictions, bit for bit, as the one that was saved.
+#include <bit>
+#include <cstdint>
+
 #include <fmt/format.h>
 
 #include "core/state_codec.h"
@@ -7,6 +10,21 @@
 
 namespace tallyd {
 namespace {
+
+// Flags of a history record in the binary layout.
+constexpr std::uint64_t kUnitExposure = 1;  // exposure is exactly 1.0 and not saved
+constexpr std::uint64_t kUnitWeight = 2;    // weight is exactly 1.0 and not saved
+
+bool is_one(double v) { return std::bit_cast<std::uint64_t>(v) == std::bit_cast<std::uint64_t>(1.0); }
+
+// to - from and from + step, wrapping like unsigned arithmetic so that no
+// saved value, however damaged, can overflow.
+std::int64_t step(std::int64_t from, std::int64_t to) {
+  return static_cast<std::int64_t>(static_cast<std::uint64_t>(to) - static_cast<std::uint64_t>(from));
+}
+std::int64_t advance(std::int64_t from, std::int64_t by) {
+  return static_cast<std::int64_t>(static_cast<std::uint64_t>(from) + static_cast<std::uint64_t>(by));
+}
 
 void save_fit(StateWriter& w, const glm::FitResult& f) {
   w.tag("fit");
@@ -88,12 +106,27 @@ void SeriesModel::save_state(StateWriter& w) const {
   w.u64(settings_->model.covariates.size());
   w.newline();
   const std::size_t k = settings_->model.covariates.size();
+  std::int64_t previous = 0;
   for (std::size_t i = 0; i < records_.size(); ++i) {
     const Stored& s = records_[i];
-    w.i64(s.time.time_since_epoch().count());
-    w.i64(s.count);
-    w.f64(s.exposure);
-    w.f64(s.weight);
+    const std::int64_t time = s.time.time_since_epoch().count();
+    if (w.binary()) {
+      // The history is most of a checkpoint: a record is a flags byte, its
+      // time as the step from the record before, its count, and only those
+      // of exposure and weight that are not exactly 1.
+      const bool unit_exposure = is_one(s.exposure), unit_weight = is_one(s.weight);
+      w.u64((unit_exposure ? kUnitExposure : 0) | (unit_weight ? kUnitWeight : 0));
+      w.i64(step(previous, time));
+      w.i64(s.count);
+      if (!unit_exposure) w.f64(s.exposure);
+      if (!unit_weight) w.f64(s.weight);
+      previous = time;
+    } else {
+      w.i64(time);
+      w.i64(s.count);
+      w.f64(s.exposure);
+      w.f64(s.weight);
+    }
     for (std::size_t c = 0; c < k; ++c) w.f64(covariate_values_[i * k + c]);
     w.newline();
   }
@@ -121,12 +154,24 @@ void SeriesModel::load_state(StateReader& r) {
   if (r.failed()) return;
   records_.clear();
   covariate_values_.clear();
+  season_values_.clear();  // derived from the times; refilled by the next learn()
+  std::int64_t previous = 0;
   for (std::uint64_t i = 0; i < n && !r.failed(); ++i) {
     Stored s{};
-    s.time = TimePoint{Seconds{r.i64()}};
-    s.count = r.i64();
-    s.exposure = r.f64();
-    s.weight = r.f64();
+    if (r.binary()) {
+      const std::uint64_t flags = r.u64();
+      if (flags > (kUnitExposure | kUnitWeight)) r.fail(fmt::format("history record flags {} unknown", flags));
+      previous = advance(previous, r.i64());
+      s.time = TimePoint{Seconds{previous}};
+      s.count = r.i64();
+      s.exposure = (flags & kUnitExposure) ? 1.0 : r.f64();
+      s.weight = (flags & kUnitWeight) ? 1.0 : r.f64();
+    } else {
+      s.time = TimePoint{Seconds{r.i64()}};
+      s.count = r.i64();
+      s.exposure = r.f64();
+      s.weight = r.f64();
+    }
     records_.push_back(s);
     for (std::uint64_t c = 0; c < k; ++c) covariate_values_.push_back(r.f64());
   }

@@ -217,7 +217,8 @@ TEST_CASE("a damaged, truncated or foreign checkpoint is refused whole", "[check
   REQUIRE_FALSE(bad);
   CHECK_THAT(bad.error().message, Catch::Contains("corrupt"));
 
-  auto foreign = checkpoint::decode("tallyd-checkpoint 5\nmarks\n", "c", config.settings, config.limits);
+  auto foreign = checkpoint::decode("tallyd-checkpoint 6\nhead 0 0000000000000000\n", "c", config.settings,
+                                    config.limits);
   REQUIRE_FALSE(foreign);
   CHECK_THAT(foreign.error().message, Catch::Contains("not a tallyd checkpoint of format version 4"));
   CHECK_THAT(foreign.error().message, Catch::Contains("another tallyd version"));
@@ -260,7 +261,7 @@ TEST_CASE("format 2 and 3 checkpoints (before held records and silence state) ar
   const MonitorConfig config = demo_config("moth_traps.toml");
   Engine engine(config.settings, config.limits);
   alerts_of(engine, demo_records("moth_traps.csv"), 0, 300);
-  const std::string v4 = checkpoint::encode(engine, checkpoint::Marks{});
+  const std::string v4 = checkpoint::encode_format4(engine, checkpoint::Marks{});
   REQUIRE(v4.rfind("tallyd-checkpoint 4\n", 0) == 0);
   for (const char* older : {"tallyd-checkpoint 2", "tallyd-checkpoint 3"}) {
     const std::string text = older + v4.substr(v4.find('\n'));
@@ -269,4 +270,121 @@ TEST_CASE("format 2 and 3 checkpoints (before held records and silence state) ar
     CHECK_THAT(refused.error().message, Catch::Contains("old.ckpt: not a tallyd checkpoint of format version 4"));
     CHECK_THAT(refused.error().message, Catch::Contains("written by another tallyd version"));
   }
+}
+
+TEST_CASE("format 5: a damaged or cut binary body, head or section line is refused whole", "[checkpoint]") {
+  const MonitorConfig config = demo_config("moth_traps.toml");
+  Engine engine(config.settings, config.limits);
+  alerts_of(engine, demo_records("moth_traps.csv"), 0, 500);
+  checkpoint::Marks marks;
+  marks.files.push_back({"/var/feeds/a.csv", 1, 2, 300, 12, 0, "time,series,count"});
+  const std::string text = checkpoint::encode(engine, marks);
+  REQUIRE(text.rfind("tallyd-checkpoint 5\nhead ", 0) == 0);
+  const std::size_t body_line = text.find("\nbody ") + 1;
+  const std::size_t body_start = text.find('\n', body_line) + 1;
+  const std::size_t body_end = text.size() - std::string_view("\nend\n").size();
+  REQUIRE(text.substr(body_end) == "\nend\n");
+  REQUIRE(body_end - body_start > 1000);
+  auto decode = [&](std::string_view bytes) {
+    return checkpoint::decode(bytes, "state.ckpt", config.settings, config.limits);
+  };
+  REQUIRE(decode(text));
+
+  // A flipped bit anywhere in the binary body: its checksum no longer matches.
+  for (std::size_t at : {body_start, body_start + 1, (body_start + body_end) / 2, body_end - 1}) {
+    std::string flipped = text;
+    flipped[at] ^= 0x01;
+    auto r = decode(flipped);
+    REQUIRE_FALSE(r);
+    INFO("flipped byte " << at);
+    CHECK_THAT(r.error().message, Catch::Contains("state.ckpt: checkpoint is corrupt"));
+    CHECK_THAT(r.error().message, Catch::Contains("body section"));
+  }
+  // The readable head is checked the same way.
+  std::string head_flipped = text;
+  head_flipped[text.find("/var/feeds/a.csv")] = 'V';
+  auto head_bad = decode(head_flipped);
+  REQUIRE_FALSE(head_bad);
+  CHECK_THAT(head_bad.error().message, Catch::Contains("corrupt"));
+  CHECK_THAT(head_bad.error().message, Catch::Contains("head section"));
+  // A damaged section line, and bytes after the end line.
+  std::string line_bad = text;
+  line_bad[body_line + 1] = 'O';
+  auto line_refused = decode(line_bad);
+  REQUIRE_FALSE(line_refused);
+  CHECK_THAT(line_refused.error().message, Catch::Contains("corrupt"));
+  auto trailing = decode(text + "x");
+  REQUIRE_FALSE(trailing);
+  CHECK_THAT(trailing.error().message, Catch::Contains("unexpected bytes"));
+
+  // Cut in the first line, the head's line, the head, the body's line, the
+  // body, and the end line.
+  for (std::size_t cut : {std::size_t{5}, std::size_t{22}, body_line - 3, body_line + 3, body_start + 1,
+                          (body_start + body_end) / 2, body_end - 1, body_end, text.size() - 1}) {
+    auto r = decode(std::string_view(text).substr(0, cut));
+    REQUIRE_FALSE(r);
+    INFO("cut at byte " << cut << " of " << text.size());
+    // Cut inside the first line, the file is not even recognisable as a checkpoint.
+    CHECK_THAT(r.error().message, Catch::Contains(cut < 20 ? "not a tallyd checkpoint" : "truncated"));
+  }
+}
+
+TEST_CASE("format 4 (the text format before 5) still loads, judges on, and is rewritten as format 5", "[checkpoint]") {
+  // Reference: the uninterrupted run of the same engine on the same demo feed.
+  const MonitorConfig config = demo_config("moth_traps.toml");
+  const std::vector<Observation> records = demo_records("moth_traps.csv");
+  Engine whole(config.settings, config.limits);
+  const std::string expected = alerts_of(whole, records, 0, records.size());
+
+  const std::size_t cut = records.size() / 2;
+  Engine first(config.settings, config.limits);
+  std::string got = alerts_of(first, records, 0, cut);
+  checkpoint::Marks marks;
+  marks.alert_log_bytes = got.size();
+  const std::string v4 = checkpoint::encode_format4(first, marks);
+  REQUIRE(v4.rfind("tallyd-checkpoint 4\n", 0) == 0);
+  auto restored = checkpoint::decode(v4, "old.ckpt", config.settings, config.limits);
+  REQUIRE(restored);
+  CHECK(restored->marks.alert_log_bytes == got.size());
+  // The next checkpoint is format 5, of the same state.
+  CHECK(checkpoint::encode(*restored->engine, marks) == checkpoint::encode(first, marks));
+  got += alerts_of(*restored->engine, records, cut, records.size());
+  CHECK(got == expected);
+}
+
+TEST_CASE("a format-4 file written by tallyd before format 5 loads and carries over", "[checkpoint]") {
+  // tests/checkpoint/format4_moth_traps.ckpt was written by tallyd's format-4
+  // writer (before format 5 existed) after the first 1,400 records of
+  // demo_feeds/moth_traps.csv under config/moth_traps.toml, with one file mark.
+  const MonitorConfig config = demo_config("moth_traps.toml");
+  const std::vector<Observation> records = demo_records("moth_traps.csv");
+  std::ifstream in(std::string(TALLYD_SOURCE_DIR) + "/tests/checkpoint/format4_moth_traps.ckpt", std::ios::binary);
+  REQUIRE(in);
+  std::ostringstream ss;
+  ss << in.rdbuf();
+  const std::string v4 = ss.str();
+  REQUIRE(v4.rfind("tallyd-checkpoint 4\n", 0) == 0);
+
+  auto old = checkpoint::decode(v4, "format4_moth_traps.ckpt", config.settings, config.limits);
+  REQUIRE(old);
+  const checkpoint::Marks& marks = old->marks;
+  REQUIRE(marks.files.size() == 1);
+  CHECK(marks.files[0].path == "/var/lib/feeds/moth_traps.csv");
+  CHECK(marks.files[0].offset == 98765);
+  CHECK(marks.files[0].header == "time,series,count,exposure,temperature_c");
+  CHECK(old->engine->counters().records == 1400);
+  CHECK(old->engine->series_count() == 24);
+  // Nothing was lost in reading: written again as format 4, it is the same file.
+  CHECK(checkpoint::encode_format4(*old->engine, marks) == v4);
+
+  // Upgraded to format 5 and read back, it judges the rest of the feed as
+  // the format-4 state does, alert for alert.
+  auto upgraded = checkpoint::decode(checkpoint::encode(*old->engine, marks), "upgraded", config.settings,
+                                     config.limits);
+  REQUIRE(upgraded);
+  const std::string from_old = alerts_of(*old->engine, records, 1400, records.size());
+  const std::string from_new = alerts_of(*upgraded->engine, records, 1400, records.size());
+  REQUIRE_FALSE(from_old.empty());
+  CHECK(from_new == from_old);
+  CHECK(checkpoint::encode(*upgraded->engine, marks) == checkpoint::encode(*old->engine, marks));
 }

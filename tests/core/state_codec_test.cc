@@ -61,3 +61,82 @@ TEST_CASE("a state cut short or of the wrong shape is an error, never a guess", 
   CHECK(wrong.failed());
   CHECK_THAT(wrong.error(), Catch::Contains("not a saved double"));
 }
+
+namespace {
+
+std::string bytes_of(std::initializer_list<unsigned> list) {
+  std::string out;
+  for (unsigned b : list) out += static_cast<char>(b);
+  return out;
+}
+
+}  // namespace
+
+TEST_CASE("binary layout: LEB128, zigzag and little-endian doubles, byte for byte", "[state]") {
+  // Unsigned LEB128 examples of the DWARF 4 standard (2010), section 7.6
+  // (2, 127, 128, 129, 12857; from memory); zigzag as in the Protocol
+  // Buffers encoding of sint64 (0, -1, 1, -2; from memory); 1.0 as an
+  // IEEE-754 binary64 is 0x3ff0000000000000 (common practice).
+  StateWriter w(StateLayout::binary);
+  for (std::uint64_t v : {2ull, 127ull, 128ull, 129ull, 12857ull}) w.u64(v);
+  for (std::int64_t v : {0ll, -1ll, 1ll, -2ll}) w.i64(v);
+  w.f64(1.0);
+  w.str("ab");
+  w.newline();
+  w.boolean(true);
+  CHECK(w.text() == bytes_of({0x02, 0x7f, 0x80, 0x01, 0x81, 0x01, 0xb9, 0x64, 0x00, 0x01, 0x02, 0x03, 0x00, 0x00,
+                              0x00, 0x00, 0x00, 0x00, 0xf0, 0x3f, 0x02, 'a', 'b', 0x01}));
+}
+
+TEST_CASE("binary layout round-trips every value the text layout does", "[state]") {
+  const double values[] = {0.0, -0.0, 1.0, -2.5e-310, std::numeric_limits<double>::infinity(),
+                           std::bit_cast<double>(0x7ff8000000000123ull)};
+  StateWriter w(StateLayout::binary);
+  w.tag("series");
+  w.str(std::string("a b\nc\0d:", 8));
+  w.str("");
+  for (std::int64_t v : {std::numeric_limits<std::int64_t>::min(), std::int64_t{-42}, std::int64_t{0},
+                         std::numeric_limits<std::int64_t>::max()})
+    w.i64(v);
+  w.u64(18446744073709551615ull);
+  for (double v : values) w.f64(v);
+  w.boolean(false);
+  StateReader r(w.text(), StateLayout::binary);
+  r.expect("series");
+  CHECK(r.str() == std::string("a b\nc\0d:", 8));
+  CHECK(r.str().empty());
+  CHECK(r.i64() == std::numeric_limits<std::int64_t>::min());
+  CHECK(r.i64() == -42);
+  CHECK(r.i64() == 0);
+  CHECK(r.i64() == std::numeric_limits<std::int64_t>::max());
+  CHECK(r.u64() == 18446744073709551615ull);
+  for (double v : values) CHECK(std::bit_cast<std::uint64_t>(r.f64()) == std::bit_cast<std::uint64_t>(v));
+  CHECK_FALSE(r.boolean());
+  CHECK_FALSE(r.failed());
+  CHECK(r.at_end());
+}
+
+TEST_CASE("binary layout: cut short, a wrong tag or an endless integer is an error", "[state]") {
+  StateWriter w(StateLayout::binary);
+  w.tag("fit");
+  w.u64(1ull << 40);
+  w.f64(1.5);
+  w.str("hello");
+  const std::string full = w.text();
+  for (std::size_t cut = 0; cut < full.size(); ++cut) {
+    StateReader r(std::string_view(full).substr(0, cut), StateLayout::binary);
+    r.expect("fit");
+    r.u64();
+    r.f64();
+    r.str();
+    CHECK(r.failed());
+  }
+  StateReader wrong(full, StateLayout::binary);
+  wrong.expect("history");
+  CHECK(wrong.failed());
+  CHECK_THAT(wrong.error(), Catch::Contains("'history'"));
+  const std::string endless(11, static_cast<char>(0x80));
+  StateReader long_int(endless, StateLayout::binary);
+  long_int.u64();
+  CHECK(long_int.failed());
+}

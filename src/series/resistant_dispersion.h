@@ -1,0 +1,40 @@
+// Consistency factor for the quasi-Poisson dispersion of a reweighted fit.
+//
+// The outbreak-resistant refit (series_model.cc; Farrington et al. 1996,
+// Noufaily et al. 2013) gives a record whose standardized Anscombe residual s
+// exceeds the threshold c the prior weight 1/s^2, then rescales all weights
+// to their old total. The weighted Pearson statistic of that fit therefore
+// loses the largest residuals even when there is no outbreak at all, and its
+// dispersion estimate runs low by the factor
+//
+//   kappa = E[v r^2] / E[v],   v = 1 if s <= c, 1/s^2 if s > c,
+//
+// with r the Pearson residual (E[r^2] = 1 under the model). Dividing the
+// estimate by kappa makes it consistent under the model, while it stays
+// resistant to the outbreaks the reweighting is there for.
+//
+// The expectations are sums over the count distribution that the bounds use
+// for quasi-Poisson noise (Poisson for phi <= 1, otherwise negative binomial
+// with the same mean and variance phi * mean): counts are right-skewed, and at
+// means of 1-100 that skew roughly doubles the shrinkage that a normal
+// residual would give (measured in tests/series/resistant_dispersion_test.cc).
+// For a standard normal residual the factor has the closed form
+//
+//   kappa(c) = (1 - c phi(c)) / (1 - 2 Q(c) + phi(c)/c)
+//
+// (phi the density, Q the upper tail; integration by parts), used where the
+// sums would be long (means above 1e4).
+#pragma once
+
+namespace tallyd {
+
+// The normal-residual closed form above; 1 for c = +infinity.
+double normal_reweighted_dispersion_factor(double threshold);
+
+// kappa for counts of mean `mean` > 0 and dispersion `phi` > 0 (leverage
+// ignored: it is about p/n). Cost: one pass over the count distribution up to
+// mean + 40 sd (about 10 + 80 sqrt(phi * mean) terms). Returns the normal
+// form for mean > 1e4 and 1 for a non-finite threshold or invalid arguments.
+double reweighted_dispersion_factor(double threshold, double mean, double phi);
+
+}  // namespace tallyd

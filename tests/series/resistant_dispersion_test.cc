@@ -1,0 +1,57 @@
+#include "series/resistant_dispersion.h"
+
+#include <cmath>
+
+#include <boost/math/distributions/normal.hpp>
+#include <boost/math/quadrature/gauss_kronrod.hpp>
+#include <catch2/catch.hpp>
+
+using namespace tallyd;
+
+namespace {
+
+// kappa(c) straight from its definition, by numerical integration with
+// Boost.Math (normal density, Gauss-Kronrod): the reference for the closed form.
+double kappa_by_quadrature(double c) {
+  const boost::math::normal_distribution<double> z;
+  auto density = [&](double r) { return boost::math::pdf(z, r); };
+  using Integrator = boost::math::quadrature::gauss_kronrod<double, 61>;
+  const double inf = std::numeric_limits<double>::infinity();
+  const double mass_below = boost::math::cdf(z, c);
+  const double square_below = Integrator::integrate([&](double r) { return r * r * density(r); }, -inf, c, 15, 1e-12);
+  const double weight_above = Integrator::integrate([&](double r) { return density(r) / (r * r); }, c, inf, 15, 1e-12);
+  const double mass_above = boost::math::cdf(boost::math::complement(z, c));
+  // E[v r^2] / E[v] with v = 1 below c and 1/r^2 above.
+  return (square_below + mass_above) / (mass_below + weight_above);
+}
+
+}  // namespace
+
+TEST_CASE("reweighted dispersion factor: closed form equals the integrals it stands for", "[series]") {
+  for (double c : {1.0, 1.5, 2.0, 2.58, 3.0, 5.0, 10.0}) {
+    INFO("threshold " << c);
+    CHECK(normal_reweighted_dispersion_factor(c) == Approx(kappa_by_quadrature(c)).epsilon(1e-9));
+  }
+  CHECK(normal_reweighted_dispersion_factor(2.58) == Approx(0.9673).epsilon(1e-3));
+  CHECK(normal_reweighted_dispersion_factor(std::numeric_limits<double>::infinity()) == 1.0);
+  // A higher threshold down-weights less, so less correction is needed.
+  CHECK(normal_reweighted_dispersion_factor(1.0) < normal_reweighted_dispersion_factor(2.58));
+  CHECK(normal_reweighted_dispersion_factor(2.58) < normal_reweighted_dispersion_factor(5.0));
+}
+
+TEST_CASE("reweighted dispersion factor for counts approaches the normal form as the mean grows", "[series]") {
+  const double normal = normal_reweighted_dispersion_factor(2.58);
+  double previous = 0;
+  for (double mean : {1.0, 5.0, 20.0, 100.0, 1000.0, 9000.0}) {
+    const double k = reweighted_dispersion_factor(2.58, mean, 2.0);
+    INFO("mean " << mean << " kappa " << k);
+    CHECK(k > 0.75);
+    CHECK(k < 1.0);
+    CHECK(k > previous - 1e-3);  // skew fades with the mean, and with it the extra shrinkage
+    previous = k;
+  }
+  CHECK(reweighted_dispersion_factor(2.58, 9000, 2.0) == Approx(normal).epsilon(3e-3));
+  CHECK(reweighted_dispersion_factor(2.58, 2e4, 2.0) == normal);  // beyond 1e4: the closed form
+  CHECK(reweighted_dispersion_factor(std::numeric_limits<double>::infinity(), 5, 2) == 1.0);
+  CHECK(reweighted_dispersion_factor(2.58, 0, 2) == 1.0);
+}
