@@ -14,6 +14,7 @@
 //   build/detection_eval [--series N] [--seed S] [--arl-series M]
 //                        [--family quasipoisson|negbin] [--scenario I]
 //                        [--configs plain,resistant,...] [--past-outbreaks K]
+//                        [--shift-error fresh|held] [--dump FILE]
 //
 // --past-outbreaks K also places K outbreaks of the scenario's kind in the
 // training years of every series (Noufaily et al. 2013 likewise put outbreaks
@@ -42,6 +43,7 @@
 #include <vector>
 
 #include "bounds/random.h"
+#include "detect/detectors.h"
 #include "engine/engine.h"
 
 using namespace tallyd;
@@ -184,7 +186,13 @@ bool counts_for(const Alert& a, const Scenario& s) {
   return s.kind == Scenario::silent ? a.side == AlertSide::low : a.side == AlertSide::high;
 }
 
-void run(const Scenario& sc, const Config& cfg, glm::Family family, const std::vector<Series>& data, Tally& tally) {
+// With `dump` set, each judged record of a null series is written as one line
+// "scenario side series week count mean theta phi eta_variance true_mean" (side
+// h or l, the watched one): what the
+// CUSUM's limit reads (detect::in_control_of) and the simulated mean, so limit
+// methods can be compared on the same fits (cusum_limit_eval) without refitting.
+void run(int si, const Scenario& sc, const Config& cfg, glm::Family family, ShiftError shift_error,
+         const std::vector<Series>& data, Tally& tally, std::FILE* dump = nullptr) {
   SettingsTable settings;
   ModelSpec& m = settings.defaults.model;
   m.family = family;
@@ -201,6 +209,7 @@ void run(const Scenario& sc, const Config& cfg, glm::Family family, const std::v
   d.shift = cfg.shift;
   d.shift_factor = 2;
   d.shift_arl_records = 500;
+  d.shift_error = shift_error;
   d.low_run = cfg.low_run;
   Engine engine(settings);
   for (std::size_t i = 0; i < data.size(); ++i) {
@@ -229,6 +238,13 @@ void run(const Scenario& sc, const Config& cfg, glm::Family family, const std::v
         tally.log_errors += e;
         tally.eta_variances += v;
         ++records;
+        if (dump) {
+          const detect::InControl in = detect::in_control_of(*r.prediction);
+          std::fprintf(dump, "%d %c %zu %d %lld %.17g %.17g %.17g %.17g %.17g\n", si,
+                       sc.kind == Scenario::silent ? 'l' : 'h', i, t,
+                       static_cast<long long>(o.count), in.mean, in.theta, in.phi, in.eta_variance,
+                       baseline_mean(sc, t));
+        }
         for (const Alert& a : r.detector_alerts) alarms += a.detector == std::string("shift") ? 1 : 0;
         if (t >= kEvalFrom) {
           ++weeks;
@@ -310,6 +326,8 @@ std::string show_arl(const Tally& t) {
 int main(int argc, char** argv) {
   int n = 100, arl_series = 0, only = -1, past = 0;
   std::string wanted;  // comma-separated configuration names; empty: all
+  std::FILE* dump = nullptr;
+  ShiftError shift_error = DetectSpec{}.shift_error;
   std::uint64_t seed = 2013;
   glm::Family family = glm::Family::quasipoisson;
   for (int i = 1; i + 1 < argc; i += 2) {
@@ -320,12 +338,21 @@ int main(int argc, char** argv) {
     else if (k == "--past-outbreaks") past = std::atoi(v.c_str());
     else if (k == "--scenario") only = std::atoi(v.c_str());
     else if (k == "--configs") wanted = "," + v + ",";
+    else if (k == "--shift-error" && (v == "fresh" || v == "held"))
+      shift_error = v == "held" ? ShiftError::held : ShiftError::fresh;
+    else if (k == "--dump") {
+      dump = std::fopen(v.c_str(), "w");
+      if (!dump) {
+        std::fprintf(stderr, "detection_eval: cannot write %s\n", v.c_str());
+        return 1;
+      }
+    }
     else if (k == "--family" && (v == "quasipoisson" || v == "negbin"))
       family = v == "negbin" ? glm::Family::negbin : glm::Family::quasipoisson;
     else {
       std::fprintf(stderr,
                    "usage: detection_eval [--series N] [--seed S] [--arl-series M] [--family quasipoisson|negbin] "
-                   "[--scenario I] [--configs a,b] [--past-outbreaks K]\n");
+                   "[--scenario I] [--configs a,b] [--past-outbreaks K] [--shift-error fresh|held] [--dump FILE]\n");
       return 1;
     }
   }
@@ -345,8 +372,9 @@ int main(int argc, char** argv) {
       {"resistant+low_run", true, 1.0, false, true},
   };
   std::printf("family %s, %d null + %d outbreak series per scenario, seed %llu, %d past outbreaks per series in the "
-              "training years; 95%% intervals in brackets\n",
-              family == glm::Family::negbin ? "negbin" : "quasipoisson", n, n, static_cast<unsigned long long>(seed), past);
+              "training years, shift_error %s; 95%% intervals in brackets\n",
+              family == glm::Family::negbin ? "negbin" : "quasipoisson", n, n, static_cast<unsigned long long>(seed), past,
+              shift_error == ShiftError::held ? "held" : "fresh");
   std::printf("%-3s %-48s %-20s %-28s %-21s %-21s %6s\n", "#", "scenario", "config", "FPR/week", "POD", "sens", "delay");
   std::vector<std::string> paired_lines, matched_lines, arl_lines;
   const int count = static_cast<int>(sizeof scenarios / sizeof scenarios[0]);
@@ -364,7 +392,7 @@ int main(int argc, char** argv) {
       if (!relevant) continue;
       if (!wanted.empty() && wanted.find("," + std::string(cfg.name) + ",") == std::string::npos) continue;
       Tally t;
-      run(sc, cfg, family, data, t);
+      run(si, sc, cfg, family, shift_error, data, t);
       std::printf("%-3d %-48s %-20s %-28s %-21s %-21s %6.1f\n", si, sc.name, cfg.name,
                   show(ratio(t.null_alert_weeks, t.null_weeks), "%.5f").c_str(),
                   show(ratio(t.detected, std::vector<double>(t.detected.size(), 1.0)), "%.3f").c_str(),
@@ -401,7 +429,7 @@ int main(int argc, char** argv) {
       std::vector<Series> nulls;
       for (int i = 0; i < arl_series; ++i) nulls.push_back(simulate(sc, false, arl_rng, past));
       Tally t;
-      run(sc, configs[3], family, nulls, t);
+      run(si, sc, configs[3], family, shift_error, nulls, t, dump);
       char line[512];
       const double judged = std::max(1.0, sum(t.cusum_records));
       std::snprintf(line, sizeof line,
@@ -422,5 +450,6 @@ int main(int argc, char** argv) {
     std::printf("\nshift CUSUM (factor 2, high side; low side for the silent trap), resistant baseline\n");
     for (const std::string& l : arl_lines) std::printf("%s\n", l.c_str());
   }
+  if (dump) std::fclose(dump);
   return 0;
 }

@@ -204,8 +204,8 @@ class Reader {
   }
 
   void read_detect(const toml::table& t, std::string_view prefix, DetectSpec& d) {
-    check_keys(t, prefix, {"shift", "shift_factor", "shift_arl_records", "low_run", "low_run_quantile", "low_run_alpha",
-                           "silence", "silence_multiple", "silence_min_gaps", "silence_window"});
+    check_keys(t, prefix, {"shift", "shift_factor", "shift_arl_records", "shift_error", "low_run", "low_run_quantile",
+                           "low_run_alpha", "silence", "silence_multiple", "silence_min_gaps", "silence_window"});
     auto number = [&](std::string_view key, double lo, double hi, bool open_lo, bool open_hi, double& out,
                       std::string_view what) {
       const toml::node* n = t.get(key);
@@ -219,6 +219,11 @@ class Reader {
     if (auto* v = get<toml::value<bool>>(t, "low_run", prefix, "true or false")) d.low_run = v->get();
     number("shift_factor", 1, 20, true, false, d.shift_factor, "must be a number above 1 and at most 20");
     number("shift_arl_records", 10, 1e6, false, false, d.shift_arl_records, "must be a number between 10 and 1000000");
+    if (auto* v = get<toml::value<std::string>>(t, "shift_error", prefix, "a string")) {
+      if (v->get() == "fresh") d.shift_error = ShiftError::fresh;
+      else if (v->get() == "held") d.shift_error = ShiftError::held;
+      else fail(*v, join(prefix, "shift_error"), fmt::format("'{}' is not one of fresh, held", v->get()));
+    }
     number("low_run_quantile", 0, 0.5, true, false, d.low_run_quantile, "must be a number in (0, 0.5]");
     number("low_run_alpha", 0, 0.5, true, true, d.low_run_alpha, "must be a number between 0 and 0.5");
     if (auto* v = get<toml::value<bool>>(t, "silence", prefix, "true or false")) d.silence = v->get();

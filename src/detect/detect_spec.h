@@ -7,6 +7,15 @@
 
 namespace tallyd {
 
+// How the shift CUSUM's decision limit allows for the error of the fitted
+// mean (see detect/shift_cusum.h, InControl, and docs/detection.md):
+// fresh: the counts' law at each record is the predictive mixture over the
+//        error, drawn afresh every record (the one-step prediction errors of
+//        a model refitted every record are close to independent);
+// held:  the error is drawn once and held over a whole run (an upper bound on
+//        its persistence: it ignores that the refits learn the counts).
+enum class ShiftError { fresh, held };
+
 struct DetectSpec {
   // Sustained shift: two one-sided CUSUMs of log-likelihood ratios (Lucas
   // 1985 for Poisson counts, the NB2 analogue for overdispersed series), for
@@ -15,6 +24,7 @@ struct DetectSpec {
   bool shift = false;               // run the shift CUSUM
   double shift_factor = 2.0;        // rate ratio to detect, > 1 (dimensionless)
   double shift_arl_records = 500;   // target in-control average run length ARL0, in judged records, per side
+  ShiftError shift_error = ShiftError::fresh;  // how the limit allows for the fitted mean's error
   // Low-count run: a record is "low" when its count is at or below its low
   // threshold c (the largest count with P(Y <= c) <= low_run_quantile, or 0);
   // an alert is raised when the product of P(Y <= c) over the current run of

@@ -53,12 +53,15 @@ LowThreshold low_threshold(const Observation& obs, const Prediction& p, const Se
 
 }  // namespace
 
-InControl in_control_of(const Prediction& prediction) {
+InControl in_control_of(const Prediction& prediction, double dispersion_df) {
   InControl in;
   in.mean = std::max(prediction.bounds.expected, 1e-6);
   const bounds::CountNoise& n = prediction.noise;
   if (n.family == glm::Family::negbin && std::isfinite(n.theta) && n.theta > 0) in.theta = n.theta;
-  if (n.family == glm::Family::quasipoisson && std::isfinite(n.dispersion) && n.dispersion > 1) in.phi = n.dispersion;
+  if (n.family == glm::Family::quasipoisson && std::isfinite(n.dispersion) && n.dispersion > 1) {
+    in.phi = n.dispersion;
+    if (std::isfinite(dispersion_df) && dispersion_df > 0) in.dispersion_df = dispersion_df;
+  }
   // The error of the fitted log mean (log link only: other links have no
   // multiplicative error to carry over).
   const double v = prediction.predictor.eta_variance;
@@ -69,7 +72,7 @@ InControl in_control_of(const Prediction& prediction) {
 CountLaw law_of(const Prediction& prediction) { return scored_law(in_control_of(prediction)); }
 
 std::vector<Alert> run_detectors(DetectorState& state, const Observation& obs, const Prediction& prediction,
-                                 const SeriesSettings& settings, LimitTable& limits) {
+                                 const SeriesSettings& settings, LimitTable& limits, double dispersion_df) {
   std::vector<Alert> out;
   const DetectSpec& d = settings.detect;
   const bool watch_high = settings.alert.direction != Direction::low;
@@ -77,12 +80,12 @@ std::vector<Alert> run_detectors(DetectorState& state, const Observation& obs, c
   if (!std::isfinite(prediction.bounds.expected)) return out;  // no usable prediction: nothing to add
 
   if (d.shift) {
-    const InControl in = in_control_of(prediction);
+    const InControl in = in_control_of(prediction, dispersion_df);
     const CountLaw law = scored_law(in);
     const double per_record = 1.0 / d.shift_arl_records;
     if (watch_high) {
       state.shift_high = std::max(0.0, state.shift_high + shift_increment(obs.count, law, d.shift_factor));
-      const double h = limits.limit(in, d.shift_factor, d.shift_arl_records);
+      const double h = limits.limit(in, d.shift_factor, d.shift_arl_records, d.shift_error);
       if (state.shift_high > h) {
         Alert a = base_alert(obs, prediction, settings.alert);
         a.side = AlertSide::high;
@@ -97,7 +100,7 @@ std::vector<Alert> run_detectors(DetectorState& state, const Observation& obs, c
     if (watch_low) {
       const double down = 1.0 / d.shift_factor;
       state.shift_low = std::max(0.0, state.shift_low + shift_increment(obs.count, law, down));
-      const double h = limits.limit(in, down, d.shift_arl_records);
+      const double h = limits.limit(in, down, d.shift_arl_records, d.shift_error);
       if (state.shift_low > h) {
         Alert a = base_alert(obs, prediction, settings.alert);
         a.side = AlertSide::low;

@@ -29,8 +29,10 @@ struct DetectorState {
 // What the prediction says about the in-control counts: the predictive
 // mean, the fitted noise (NB2 size theta; quasi-Poisson phi), and, under the
 // log link, the variance of the fitted log mean (eta_variance), which the
-// CUSUM's limit allows for (see shift_cusum.h, InControl).
-InControl in_control_of(const Prediction& prediction);
+// CUSUM's limit allows for (see shift_cusum.h, InControl); `dispersion_df`
+// is the fit's residual degrees of freedom (glm::FitResult::df_residual),
+// kept only for a quasi-Poisson noise (0: phi taken as known).
+InControl in_control_of(const Prediction& prediction, double dispersion_df = 0);
 
 // The in-control count law the CUSUM scores counts against: NB2 (or
 // Poisson) with the predictive mean and variance, scored_law(in_control_of).
@@ -43,9 +45,10 @@ CountLaw law_of(const Prediction& prediction);
 // (detector "shift" on either side, "low_run" on the low side), in that
 // order. Sides follow settings.alert.direction; detectors switched off in
 // settings.detect leave their fields untouched. `limits` is the value cache
-// of CUSUM decision limits. Never throws on data.
+// of CUSUM decision limits; `dispersion_df` as for in_control_of. Never
+// throws on data.
 std::vector<Alert> run_detectors(DetectorState& state, const Observation& obs, const Prediction& prediction,
-                                 const SeriesSettings& settings, LimitTable& limits);
+                                 const SeriesSettings& settings, LimitTable& limits, double dispersion_df = 0);
 
 // Labels written in the alert's "detector" field.
 inline constexpr const char* kShiftLabel = "shift";

@@ -51,6 +51,11 @@ constexpr double kNodes[5] = {0.0, 1.3556261799742659, -1.3556261799742659, 2.85
 constexpr double kWeights[5] = {0.5333333333333333, 0.22207592200561265, 0.22207592200561265,
                                 0.011257411327720689, 0.011257411327720689};
 
+// The 3-node rule for E[f(Z)], Z ~ N(0, 1): nodes 0, +-sqrt(3), weights 2/3,
+// 1/6, 1/6 (Abramowitz and Stegun 1964, Table 25.10, n = 3, rescaled).
+constexpr double kNodes3[3] = {0.0, 1.7320508075688772, -1.7320508075688772};
+constexpr double kWeights3[3] = {0.6666666666666667, 0.16666666666666667, 0.16666666666666667};
+
 // The true count law at mean m for the noise of `in`.
 CountLaw noise_at(const InControl& in, double m) {
   if (std::isfinite(in.theta) && in.theta > 0) return {m, in.theta};
@@ -63,7 +68,10 @@ CountLaw noise_at(const InControl& in, double m) {
 // not depend on h, so they are computed once and reused through a bisection.
 class Chain {
  public:
-  Chain(const CountLaw& scored, double factor, const std::vector<std::pair<double, CountLaw>>& truths) {
+  // With `mix` the truths are one law, their weighted mixture (an error drawn
+  // afresh each record); without, separate chains whose alarm rates are averaged.
+  Chain(const CountLaw& scored, double factor, const std::vector<std::pair<double, CountLaw>>& truths,
+        bool mix = false) {
     std::int64_t ymax = 0;
     for (const auto& [weight, law] : truths) {
       Component c;
@@ -72,6 +80,37 @@ class Chain {
       ymax = std::max(ymax, top);
       c.pmf.resize(static_cast<std::size_t>(top + 1));
       for (std::int64_t y = 0; y <= top; ++y) c.pmf[static_cast<std::size_t>(y)] = std::exp(log_pmf(y, law));
+      components_.push_back(std::move(c));
+    }
+    if (mix && components_.size() > 1) {
+      Component m;
+      m.pmf.assign(static_cast<std::size_t>(ymax + 1), 0.0);
+      for (const Component& c : components_)
+        for (std::size_t y = 0; y < c.pmf.size(); ++y) m.pmf[y] += c.weight * c.pmf[y];
+      components_.assign(1, std::move(m));
+    }
+    step_.resize(static_cast<std::size_t>(ymax + 1));
+    for (std::int64_t y = 0; y <= ymax; ++y) step_[static_cast<std::size_t>(y)] = shift_increment(y, scored, factor);
+  }
+
+  // Components that are themselves mixtures: each part's laws are mixed into
+  // one law per record (weights within a part sum to 1), the parts' alarm
+  // rates averaged with their weights.
+  struct Part {
+    double weight;
+    std::vector<std::pair<double, CountLaw>> laws;
+  };
+  Chain(const CountLaw& scored, double factor, const std::vector<Part>& parts) {
+    std::int64_t ymax = 0;
+    for (const Part& part : parts) {
+      Component c;
+      c.weight = part.weight;
+      for (const auto& [weight, law] : part.laws) {
+        const std::int64_t top = count_ceiling(law);
+        ymax = std::max(ymax, top);
+        if (c.pmf.size() < static_cast<std::size_t>(top + 1)) c.pmf.resize(static_cast<std::size_t>(top + 1), 0.0);
+        for (std::int64_t y = 0; y <= top; ++y) c.pmf[static_cast<std::size_t>(y)] += weight * std::exp(log_pmf(y, law));
+      }
       components_.push_back(std::move(c));
     }
     step_.resize(static_cast<std::size_t>(ymax + 1));
@@ -124,18 +163,37 @@ class Chain {
 
 Chain known_chain(const CountLaw& law, double factor) { return Chain(law, factor, {{1.0, law}}); }
 
-Chain fitted_chain(const InControl& in, double factor) {
+Chain fitted_chain(const InControl& in, double factor, ShiftError error) {
   const CountLaw scored = scored_law(in);
   const double v = std::isfinite(in.eta_variance) ? std::max(in.eta_variance, 0.0) : 0.0;
+  // The mean's error: node weights and log-scale offsets (exp(delta - v / 2)
+  // keeps the mixture's mean at the predictive mean).
+  std::vector<std::pair<double, double>> mean_nodes;
+  if (v <= 0) mean_nodes.push_back({1.0, 0.0});
+  else
+    for (int i = 0; i < 5; ++i) mean_nodes.push_back({kWeights[i], std::sqrt(v) * kNodes[i] - 0.5 * v});
   std::vector<std::pair<double, CountLaw>> truths;
-  if (v <= 0) {
-    truths.push_back({1.0, noise_at(in, in.mean)});
-  } else {
-    // exp(delta - v / 2) keeps the mixture's mean at the predictive mean.
-    for (int i = 0; i < 5; ++i)
-      truths.push_back({kWeights[i], noise_at(in, in.mean * std::exp(std::sqrt(v) * kNodes[i] - 0.5 * v))});
+  if (error == ShiftError::held) {
+    for (const auto& [w, d] : mean_nodes) truths.push_back({w, noise_at(in, in.mean * std::exp(d))});
+    return Chain(scored, factor, truths, false);
   }
-  return Chain(scored, factor, truths);
+  const bool phi_error = std::isfinite(in.phi) && in.phi > 1 && std::isfinite(in.dispersion_df) && in.dispersion_df > 0;
+  if (!phi_error) {
+    for (const auto& [w, d] : mean_nodes) truths.push_back({w, noise_at(in, in.mean * std::exp(d))});
+    return Chain(scored, factor, truths, true);
+  }
+  // One chain per node of phi's error (held over a run), each with the mean's
+  // error mixed into every record's law (fresh); alarm rates averaged.
+  const double s = std::sqrt(2 / std::max(in.dispersion_df, 2.0));
+  std::vector<Chain::Part> parts;
+  for (int j = 0; j < 3; ++j) {
+    InControl node = in;
+    node.phi = in.phi * std::exp(s * kNodes3[j] + 0.5 * s * s);
+    std::vector<std::pair<double, CountLaw>> mix;
+    for (const auto& [w, d] : mean_nodes) mix.push_back({w, noise_at(node, in.mean * std::exp(d))});
+    parts.push_back({kWeights3[j], std::move(mix)});
+  }
+  return Chain(scored, factor, parts);
 }
 
 double limit_from(const Chain& chain, double arl0, int states) {
@@ -167,6 +225,7 @@ double limit_from(const Chain& chain, double arl0, int states) {
 
 constexpr double kVarianceStep = 0.5;   // log-scale cell of eta_variance in the limit cache
 constexpr double kVarianceFloor = 1e-5; // below this the estimation error is ignored
+constexpr double kDfCeiling = 2000;     // above this phi counts as known
 
 // The noise's dispersion index Var / mean at mean m (1 for Poisson).
 double noise_index(const InControl& in, double m) {
@@ -191,16 +250,16 @@ double chain_arl(const CountLaw& law, double factor, double h, int states) {
   return known_chain(law, factor).arl(h, states);
 }
 
-double chain_arl(const InControl& in, double factor, double h, int states) {
-  return fitted_chain(in, factor).arl(h, states);
+double chain_arl(const InControl& in, double factor, double h, int states, ShiftError error) {
+  return fitted_chain(in, factor, error).arl(h, states);
 }
 
 double decision_limit(const CountLaw& law, double factor, double arl0, int states) {
   return limit_from(known_chain(law, factor), arl0, states);
 }
 
-double decision_limit(const InControl& in, double factor, double arl0, int states) {
-  return limit_from(fitted_chain(in, factor), arl0, states);
+double decision_limit(const InControl& in, double factor, double arl0, int states, ShiftError error) {
+  return limit_from(fitted_chain(in, factor, error), arl0, states);
 }
 
 InControl LimitTable::rounded(const InControl& in) {
@@ -214,21 +273,29 @@ InControl LimitTable::rounded(const InControl& in) {
     if (std::isfinite(in.theta) && in.theta > 0) out.theta = mean_r / (index_r - 1);
     else out.phi = index_r;
   }
+  if (std::isfinite(in.dispersion_df) && in.dispersion_df > 0 && in.dispersion_df <= kDfCeiling)
+    out.dispersion_df = std::exp(kVarianceStep * static_cast<double>(std::lround(std::log(std::max(in.dispersion_df, 2.0)) / kVarianceStep)));
   if (std::isfinite(in.eta_variance) && in.eta_variance >= kVarianceFloor)
     out.eta_variance = std::exp(kVarianceStep * static_cast<double>(std::lround(std::log(in.eta_variance) / kVarianceStep)));
   return out;
 }
 
-double LimitTable::limit(const InControl& in, double factor, double arl0) {
+double LimitTable::limit(const InControl& in, double factor, double arl0, ShiftError error) {
   const InControl r = rounded(in);
   const long mean_cell = std::lround(std::log(r.mean) / kGridStep);
   const int kind = std::isfinite(r.theta) && r.theta > 0 ? 1 : (r.phi > 1 ? 2 : 0);
   const long index_cell = std::lround(std::log(noise_index(r, r.mean)) / kGridStep);
   const long variance_cell = r.eta_variance > 0 ? std::lround(std::log(r.eta_variance) / kVarianceStep) : -1000;
-  const auto key = std::make_tuple(mean_cell, kind, index_cell, variance_cell, factor, arl0);
+  // Without an estimation error both allowances are the same chain.
+  const int allowance = variance_cell == -1000 ? 0 : static_cast<int>(error) + 1;
+  // phi's error enters only the fresh chain of a quasi-Poisson noise.
+  const long df_cell = kind == 2 && error == ShiftError::fresh && r.dispersion_df > 0
+                           ? std::lround(std::log(r.dispersion_df) / kVarianceStep)
+                           : -1000;
+  const auto key = std::make_tuple(mean_cell, kind, index_cell, variance_cell, factor, arl0, allowance, df_cell);
   auto it = cache_.find(key);
   if (it != cache_.end()) return it->second;
-  const double h = decision_limit(r, factor, arl0, kTableStates);
+  const double h = decision_limit(r, factor, arl0, kTableStates, error);
   cache_.emplace(key, h);
   return h;
 }

@@ -24,6 +24,8 @@
 #include <map>
 #include <tuple>
 
+#include "detect/detect_spec.h"
+
 namespace tallyd::detect {
 
 // The in-control count noise at one mean: Poisson when size is not a finite
@@ -41,15 +43,25 @@ double shift_increment(std::int64_t y, const CountLaw& law, double factor);
 // What a fitted model says the in-control counts do, for calibrating a limit.
 // The counts follow the count noise around a true mean mean * exp(delta -
 // eta_variance / 2), with delta ~ N(0, eta_variance) the error of the fitted
-// log mean (log link). That error is shared by neighbouring records (their
-// fits share nearly all their data), so for the calibration delta is held
-// fixed over a run: the realised alarm rate is the average over delta of
-// 1 / ARL(delta), not the rate of a chain whose variance merely includes it.
+// log mean (log link). ShiftError says how delta behaves over a run:
+// fresh: drawn anew for every record, so each count follows the predictive
+//   mixture over delta (the one-step prediction errors of a model refitted
+//   every record are close to independent, like recursive residuals: the
+//   error persists, but the refits learn the counts that it would push up);
+// held: drawn once and held fixed over a run; the realised alarm rate is
+//   then the average over delta of 1 / ARL(delta).
 struct InControl {
   double mean = 1;          // predictive mean E[Y] (the model's `expected`), > 0
   double theta = 0;         // NB2 size of the count noise; not finite and positive: no NB2 noise
   double phi = 1;           // quasi-Poisson dispersion (Var / mean of the noise); <= 1: none
   double eta_variance = 0;  // variance of the fitted log mean's error, >= 0 (0: plug-in mean is exact)
+  // Residual degrees of freedom of the estimated quasi-Poisson phi (0: phi
+  // taken as known). With ShiftError::fresh and phi > 1 the limit also
+  // allows for phi's estimation error: the true phi is phi * df / chi2(df),
+  // held over a run (consecutive fits share their data), taken as lognormal
+  // with the same log-scale spread sqrt(2 / df) and mean 1 + 2 / df,
+  // 3-node Gauss-Hermite; the alarm rate is averaged over it.
+  double dispersion_df = 0;
 };
 
 // The law the CUSUM scores counts against: NB2 (or Poisson) with the
@@ -64,27 +76,31 @@ CountLaw scored_law(const InControl& in);
 double chain_arl(const CountLaw& law, double factor, double h, int states = 150);
 
 // With an InControl the increments are scored against scored_law(in) and
-// the counts follow the noise around the shifted mean; the result is the
-// reciprocal of the alarm rate averaged over delta (5-node Gauss-Hermite),
-// +inf when no node can reach the limit.
-double chain_arl(const InControl& in, double factor, double h, int states = 150);
+// the counts follow the noise around the shifted mean, delta at the 5 nodes
+// of the Gauss-Hermite rule: fresh mixes the 5 laws into each record's count
+// law; held gives the reciprocal of the alarm rate averaged over delta.
+// +inf when the limit cannot be reached.
+double chain_arl(const InControl& in, double factor, double h, int states = 150,
+                 ShiftError error = ShiftError::held);
 
 // The limit h whose chain ARL is nearest arl0 (> 1) on the log scale: the ARL
 // of counts is a step function of h, and of the two limits either side of the
 // step that crosses arl0 the nearer is kept (bisection to 1e-3 relative in h).
 double decision_limit(const CountLaw& law, double factor, double arl0, int states = 150);
-double decision_limit(const InControl& in, double factor, double arl0, int states = 150);
+double decision_limit(const InControl& in, double factor, double arl0, int states = 150,
+                      ShiftError error = ShiftError::held);
 
 // Decision limits cached by value. The mean and the noise's dispersion index
 // at the mean (Var / mean) are rounded to a grid of 0.1 steps on the log
 // scale (about 10%), eta_variance to steps of 0.5 in log (below 1e-5 it
-// counts as 0), and the limit is computed for the rounded law with a
+// counts as 0), dispersion_df to steps of 0.5 in log (below 2 it counts as
+// 2; above 2000 as known), and the limit is computed for the rounded law with a
 // 100-cell chain (a limit costs some 100 chain solves), so equal inputs always give
 // equal limits, whatever came before (no hidden dependence on history; the
 // cache is a speed-up only and needs no checkpoint). Not thread-safe.
 class LimitTable {
  public:
-  double limit(const InControl& in, double factor, double arl0);
+  double limit(const InControl& in, double factor, double arl0, ShiftError error = ShiftError::held);
   // A known law: the limit of the InControl with that noise and no estimation error.
   double limit(const CountLaw& law, double factor, double arl0);
   // The rounded situation a limit is computed for.
@@ -92,8 +108,9 @@ class LimitTable {
   std::size_t size() const { return cache_.size(); }
 
  private:
-  // mean cell, noise kind (0 Poisson, 1 NB2 size, 2 quasi-Poisson), index cell, eta_variance cell, factor, arl0
-  std::map<std::tuple<long, int, long, long, double, double>, double> cache_;
+  // mean cell, noise kind (0 Poisson, 1 NB2 size, 2 quasi-Poisson), index cell, eta_variance cell, factor,
+  // arl0, error allowance, dispersion_df cell
+  std::map<std::tuple<long, int, long, long, double, double, int, long>, double> cache_;
 };
 
 }  // namespace tallyd::detect

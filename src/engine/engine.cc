@@ -128,14 +128,16 @@ IngestResult Engine::ingest(const Observation& obs) {
     if (s.detect.shift || s.detect.low_run) {
       detect::DetectorState& state = detectors_[obs.series];
       const detect::DetectorState before = state;
-      r.detector_alerts = detect::run_detectors(state, obs, *r.prediction, s, limits_table_);
+      // The dispersion's residual df lets the CUSUM's limit allow for phi's estimation error.
+      const double df = model.has_fit() ? model.fit().df_residual : 0;
+      r.detector_alerts = detect::run_detectors(state, obs, *r.prediction, s, limits_table_, df);
       if (!r.detector_alerts.empty() && r.prediction->bounds.screened) {
         // A detector alert shows the record's bounds: compute them and run the
         // detectors again from the same state (they read only the mean and
         // the noise, which the screen leaves as they are, so they decide the same).
         state = before;
         r.prediction = model.predict(obs, false);
-        r.detector_alerts = detect::run_detectors(state, obs, *r.prediction, s, limits_table_);
+        r.detector_alerts = detect::run_detectors(state, obs, *r.prediction, s, limits_table_, df);
       }
       for (const Alert& a : r.detector_alerts) {
         ++(a.side == AlertSide::high ? counters_.alerts_high : counters_.alerts_low);

@@ -93,6 +93,7 @@ TEST_CASE("every config error names the file, the line and the key", "[config]")
       {"[detect]\nshift_factor = 1\n", "monitor.toml:2: detect.shift_factor: must be a number above 1"},
       {"[detect]\nlow_run_alpha = 0\n", "monitor.toml:2: detect.low_run_alpha: must be"},
       {"[detect]\nshfit = true\n", "monitor.toml:2: detect.shfit: unknown key"},
+      {"[detect]\nshift_error = \"kept\"\n", "monitor.toml:2: detect.shift_error: 'kept' is not one of fresh, held"},
   };
   for (const Case& c : cases) {
     auto r = parse_config(c.text, "monitor.toml");
@@ -113,6 +114,7 @@ guard_records = 3
 shift = true
 shift_factor = 1.5
 shift_arl_records = 1000
+shift_error = "held"
 low_run = true
 low_run_quantile = 0.2
 low_run_alpha = 0.0005
@@ -130,6 +132,7 @@ detect.shift = false
   CHECK(d.detect.shift);
   CHECK(d.detect.shift_factor == 1.5);
   CHECK(d.detect.shift_arl_records == 1000);
+  CHECK(d.detect.shift_error == ShiftError::held);
   CHECK(d.detect.low_run);
   CHECK(d.detect.low_run_quantile == 0.2);
   CHECK(d.detect.low_run_alpha == 0.0005);

@@ -239,3 +239,79 @@ TEST_CASE("fitted model: a sustained doubling of a mean-5 weekly series is flagg
   CHECK(within_4 > series / 2);
   CHECK(flagged >= within_4);
 }
+
+TEST_CASE("shift CUSUM on fitted models: realised in-control run length brackets its target", "[detect][engine]") {
+  // Guards the decision-limit method (detect.shift_error). 60 outbreak-free
+  // weekly negative binomial series with Var = 2 mu, mu = 5 exp(0.5 cos(2 pi
+  // t / 52)) (3 to 8), through the engine as a replay runs them
+  // (quasi-Poisson, trend, yearly season with 2 harmonics, 104-week window
+  // refitted every week, resistant refits), judged from week 52, ARL0 200,
+  // low side only (its limits are the slow part). The realised alarm rate (alarms / judged
+  // records, ratio estimator with the series as the unit, as
+  // src/bench/detection_eval.cc) must be within 3 Monte Carlo standard
+  // errors of 1 / ARL0 (common practice for a simulation check; about 40%
+  // here). The fits do not depend on the CUSUM (alerted_weight 1), so the
+  // held-error limit is run on the same predictions: it must miss the target
+  // (too long), which shows the check can fail.
+  SettingsTable settings;
+  ModelSpec& m = settings.defaults.model;
+  m.family = glm::Family::quasipoisson;
+  m.trend = true;
+  m.seasons = {Season{Seconds{static_cast<std::int64_t>(kDaysPerYear * kSecondsPerDay)}, 2}};
+  m.window = Window{std::nullopt, 104};
+  m.min_history = 52;
+  settings.defaults.alert.direction = Direction::low;
+  DetectSpec& d = settings.defaults.detect;
+  d.shift = true;
+  d.shift_arl_records = 200;
+  REQUIRE(d.shift_error == ShiftError::fresh);  // the default under test
+  Engine engine(settings);
+  SeriesSettings held = settings.defaults;
+  held.detect.shift_error = ShiftError::held;
+  LimitTable held_limits;
+
+  bounds::Rng rng(1972);
+  const int series = 60, weeks = 260;
+  // Per series: judged records, alarms per side (fresh, engine; held, on the same predictions).
+  std::vector<double> judged(series), high(series), low(series), held_high(series), held_low(series);
+  std::vector<DetectorState> held_state(series);
+  for (int t = 0; t < weeks; ++t) {
+    const double mean = 5 * std::exp(0.5 * std::cos(2 * M_PI * t / 52.0));
+    for (int s = 0; s < series; ++s) {
+      Observation o;
+      o.series = "plot-" + std::to_string(s);
+      o.time = TimePoint{Seconds{1262563200 + static_cast<std::int64_t>(t) * 7 * 86400}};
+      o.count = rng.negbin(mean, mean);  // size mu: Var = 2 mu
+      IngestResult r = engine.ingest(o);
+      if (r.kind != IngestResult::Kind::judged) continue;
+      ++judged[s];
+      for (const Alert& a : r.detector_alerts)
+        if (a.detector == kShiftLabel) ++(a.side == AlertSide::high ? high : low)[s];
+      for (const Alert& a : run_detectors(held_state[s], o, *r.prediction, held, held_limits))
+        ++(a.side == AlertSide::high ? held_high : held_low)[s];
+    }
+  }
+  struct Rate {
+    double value, se;
+  };
+  auto rate = [&](const std::vector<double>& alarms) {
+    double sa = 0, sr = 0, ss = 0;
+    for (int s = 0; s < series; ++s) {
+      sa += alarms[s];
+      sr += judged[s];
+    }
+    const double r = sa / sr;
+    for (int s = 0; s < series; ++s) ss += (alarms[s] - r * judged[s]) * (alarms[s] - r * judged[s]);
+    return Rate{r, std::sqrt(ss * series / (series - 1.0)) / sr};
+  };
+  const double target = 1.0 / d.shift_arl_records;
+  const Rate h = rate(high), l = rate(low), hh = rate(held_high), hl = rate(held_low);
+  double records = 0;
+  for (double j : judged) records += j;
+  INFO("judged " << records << "; ARL low " << 1 / l.value << " (rate " << l.value << " +- " << l.se
+                 << "); held: low " << 1 / hl.value << " (rate " << hl.value << " +- " << hl.se << "); target "
+                 << d.shift_arl_records);
+  CHECK(h.value + hh.value == 0);  // the high side is not watched
+  CHECK(std::abs(l.value - target) <= 3 * l.se);
+  CHECK(hl.value < target - 3 * hl.se);
+}
