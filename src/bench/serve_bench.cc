@@ -144,8 +144,16 @@ int main(int argc, char** argv) {
   const auto s0 = Clock::now();
   int fd = connect_to(push_port);
   send_all(fd, body);
-  while (records_seen(status_port) < n) std::this_thread::sleep_for(std::chrono::milliseconds(5));
+  std::vector<double> answers;  // seconds each /state took while the backlog was judged
+  for (;;) {
+    const auto q0 = Clock::now();
+    const long seen = records_seen(status_port);
+    answers.push_back(std::chrono::duration<double>(Clock::now() - q0).count());
+    if (seen >= n) break;
+    std::this_thread::sleep_for(std::chrono::milliseconds(5));
+  }
   const double serve_s = std::chrono::duration<double>(Clock::now() - s0).count();
+  std::sort(answers.begin(), answers.end());
 
   // Latency: a count of 60 (mean 5) after the feed, one series at a time.
   std::vector<double> delays;
@@ -172,6 +180,8 @@ int main(int argc, char** argv) {
   std::printf("replay (baseline): %.2f s, %.0f records/s\n", replay_s, static_cast<double>(n) / replay_s);
   std::printf("serve over TCP:    %.2f s, %.0f records/s (%.2f x replay)\n", serve_s, static_cast<double>(n) / serve_s,
               replay_s / serve_s);
+  std::printf("/state answers during the backlog: %zu, median %.3f ms, longest %.1f ms\n", answers.size(),
+              answers[answers.size() / 2] * 1e3, answers.back() * 1e3);
   std::printf("send-to-alert-written delay over %zu alerts: p50 %.3f ms, p99 %.3f ms\n", delays.size(), q(0.5) * 1e3,
               q(0.99) * 1e3);
   std::string rm = "rm -rf " + dir;

@@ -82,15 +82,39 @@ bool FileFollower::open_file() {
   return true;
 }
 
-void FileFollower::take_lines(Intake& intake, SteadyTime arrival) {
+void FileFollower::take_lines(LineBatch& batch) {
   for (Split s = splitter_.next(); s.kind != SplitKind::need_more; s = splitter_.next()) {
     s.number += base_line_;
-    ParseOutcome o = decoder_->decode(s, max_line_bytes_);
-    intake.offer(o, *figures_, arrival);
+    batch.lines.push_back(decoder_->decode(s, max_line_bytes_));
   }
 }
 
-bool FileFollower::poll(Intake& intake, std::size_t budget_bytes) {
+namespace {
+
+bool same_mark(const checkpoint::FileMark& a, const checkpoint::FileMark& b) {
+  return a.path == b.path && a.device == b.device && a.inode == b.inode && a.offset == b.offset &&
+         a.line == b.line && a.format == b.format && a.header == b.header;
+}
+
+}  // namespace
+
+void FileFollower::finish_batch(LineBatch& batch) {
+  checkpoint::FileMark now = mark();
+  if (batch.lines.empty() && last_handed_ && same_mark(now, *last_handed_)) return;
+  last_handed_ = now;
+  batch.mark = std::move(now);
+}
+
+bool FileFollower::poll(LineBatch& batch, std::size_t budget_bytes) {
+  batch.figures = figures_;
+  const bool more = read_some(batch, budget_bytes);
+  // Whatever happened (lines, rotation, truncation, a failed read), the batch
+  // leaves with the mark of where reading now stands.
+  finish_batch(batch);
+  return more;
+}
+
+bool FileFollower::read_some(LineBatch& batch, std::size_t budget_bytes) {
   if (fd_ < 0 && !open_file()) return false;
   std::size_t taken = 0;
   while (taken < budget_bytes) {
@@ -102,11 +126,11 @@ bool FileFollower::poll(Intake& intake, std::size_t budget_bytes) {
       return false;
     }
     if (n == 0) break;
-    const SteadyTime arrival = std::chrono::steady_clock::now();
+    if (taken == 0) batch.arrival = std::chrono::steady_clock::now();
     read_pos_ += static_cast<std::uint64_t>(n);
     taken += static_cast<std::size_t>(n);
     splitter_.push(std::string_view(chunk_.data(), static_cast<std::size_t>(n)));
-    take_lines(intake, arrival);
+    take_lines(batch);
   }
   if (taken >= budget_bytes) return true;
 

@@ -23,22 +23,6 @@ std::unique_ptr<Engine> Intake::replace_engine(std::unique_ptr<Engine> engine) {
   return engine;
 }
 
-void Intake::warn_limited(const std::string& message) {
-  const auto now = std::chrono::steady_clock::now();
-  if (now - warn_window_ >= std::chrono::seconds(1)) {
-    if (suppressed_ > 0) spdlog::warn("{} more refused records not shown (all are counted)", suppressed_);
-    warn_window_ = now;
-    warned_in_window_ = 0;
-    suppressed_ = 0;
-  }
-  if (warned_in_window_ < kWarnPerSecond) {
-    ++warned_in_window_;
-    spdlog::warn("{}", message);
-  } else {
-    ++suppressed_;
-  }
-}
-
 void Intake::refuse(const Rejection& r, SourceFigures& figures) {
   engine_->count_rejection(r.reason);
   ++figures.rejected;

@@ -1,7 +1,8 @@
 // Intake: the service's handler. It takes decoded lines from every source,
 // feeds records to the engine, writes alerts to the alert log and keeps the
 // figures the status endpoint shows. It touches no sockets and no files other
-// than through AlertLog; used from the event loop thread only.
+// than through AlertLog. Not thread-safe: in `tallyd serve` it belongs to the
+// judging thread (daemon/judge_thread.h).
 #pragma once
 
 #include <array>
@@ -13,6 +14,7 @@
 #include <vector>
 
 #include "daemon/alert_log.h"
+#include "daemon/warn_limiter.h"
 #include "engine/engine.h"
 #include "engine/output_lines.h"
 #include "feed/parse_outcome.h"
@@ -21,7 +23,10 @@ namespace tallyd::daemon {
 
 using SteadyTime = std::chrono::steady_clock::time_point;
 
-// Per-source figures for status and metrics.
+// Per-source figures for status and metrics. In `tallyd serve` each field
+// has one writer: `records` and `rejected` the judging thread (Intake), the
+// others the event-loop thread (the sources); the status endpoint reads the
+// judging thread's fields from its published snapshot only.
 struct SourceFigures {
   std::string name;
   std::string kind;            // follow, tcp, udp, stdin
@@ -29,6 +34,7 @@ struct SourceFigures {
   std::uint64_t rejected = 0;  // refusals by the parser or the engine
   std::uint64_t connections = 0;          // tcp: accepted so far
   std::uint64_t connections_refused = 0;  // tcp: closed at once because of max_connections
+  std::uint64_t dropped_queue_full = 0;   // udp: datagrams dropped unread because the judging queue was full
 };
 
 // Upper bounds (seconds) of the processing-latency histogram buckets: from a
@@ -57,11 +63,8 @@ class Intake {
   // time runs from the latest line offered). Returns whether it released.
   bool release_step(TimePoint wall_now, SteadyTime now, const detect::FdrSpec& spec);
   std::uint64_t steps_released() const { return steps_released_; }
-  // A refusal made outside a decoder (e.g. a datagram too large, a refused connection).
+  // A refusal made before the engine (by a decoder, or a datagram too large): counted and logged.
   void refuse(const Rejection& r, SourceFigures& figures);
-  // A warning that is not a record's refusal (e.g. a connection over the
-  // limit), under the same rate limit as refusals.
-  void warn_limited(const std::string& message);
 
   // Moves the engine's data clock to `now` (the optional wall clock of
   // [intake] clock = "wall"): writes what held records and silence it releases.
@@ -77,7 +80,7 @@ class Intake {
   std::uint64_t write_failures() const { return write_failures_; }
 
  private:
-  void log_refusal(const Rejection& r) { warn_limited(r.describe()); }
+  void log_refusal(const Rejection& r) { warnings_.warn(r.describe()); }
   void write_lines(std::vector<OutputLine> lines);
   // Writes and counts what one offer or tick released; `figures` is the
   // source of the offered record (null for a tick).
@@ -90,11 +93,7 @@ class Intake {
   std::uint64_t write_failures_ = 0;
   SteadyTime last_line_;               // arrival of the latest line offered (or the start)
   std::uint64_t steps_released_ = 0;   // time steps released by release_step
-  // Rate limit for refusal warnings: at most kWarnPerSecond per second.
-  static constexpr int kWarnPerSecond = 5;
-  std::chrono::steady_clock::time_point warn_window_{};
-  int warned_in_window_ = 0;
-  std::uint64_t suppressed_ = 0;
+  WarnLimiter warnings_;  // refusal warnings: at most 5 a second
 };
 
 }  // namespace tallyd::daemon

@@ -1,5 +1,7 @@
 // The status endpoint's two documents: /state (JSON) and /metrics
-// (OpenMetrics text format 1.0.0). Part of Server; loop thread only.
+// (OpenMetrics text format 1.0.0). Part of Server; loop thread only. The
+// judging side's figures come from one snapshot (JudgeThread::snapshot), so
+// they agree with each other and the answer never waits for the engine.
 #include <fmt/format.h>
 #include <nlohmann/json.hpp>
 
@@ -20,6 +22,11 @@ std::string label_value(std::string_view s) {
   return out;
 }
 
+std::uint64_t judged_bytes(const JudgedFigures& jf, const std::string& path) {
+  auto it = jf.judged_bytes.find(path);
+  return it == jf.judged_bytes.end() ? 0 : it->second;
+}
+
 std::int64_t unix_now() {
   return std::chrono::duration_cast<std::chrono::seconds>(std::chrono::system_clock::now().time_since_epoch()).count();
 }
@@ -28,12 +35,12 @@ std::int64_t unix_now() {
 
 std::string Server::status_json() const {
   using nlohmann::json;
-  const Engine& e = intake_->engine();
-  const EngineCounters& c = e.counters();
+  const JudgedFigures jf = judge_->snapshot();
+  const EngineCounters& c = jf.counters;
   json j;
   j["uptime_seconds"] =
       std::chrono::duration_cast<std::chrono::seconds>(std::chrono::steady_clock::now() - started_).count();
-  j["series"] = e.series_count();
+  j["series"] = jf.series;
   j["records"] = c.records;
   j["judged"] = c.judged;
   j["warming_up"] = c.warming_up;
@@ -42,55 +49,58 @@ std::string Server::status_json() const {
     rej[std::string(reject_label(static_cast<RejectReason>(i)))] = c.rejected.by_reason[i];
   j["rejected"] = rej;
   j["alerts"] = {{"high", c.alerts_high}, {"low", c.alerts_low}};
-  j["silence"] = {{"alerts", c.alerts_silence}, {"ended", c.silence_ends}, {"silent_now", e.silence().silent_count()}};
-  j["arrival"] = {{"held", e.held_count()}, {"duplicates_replaced", c.duplicates_replaced}};
-  j["episodes"] = {{"open", e.episodes().open_count()},
-                   {"opened", e.episodes().totals().opened},
-                   {"closed", e.episodes().totals().closed}};
-  if (config_->fdr.enabled) {
-    const detect::FdrState& f = e.fdr_state();
-    j["fdr"] = {{"open_step", f.open_step ? json(*f.open_step) : json(nullptr)},
-                {"waiting_records", f.pending.size()},
-                {"steps_released_by_rule", intake_->steps_released()}};
+  j["silence"] = {{"alerts", c.alerts_silence}, {"ended", c.silence_ends}, {"silent_now", jf.silent_now}};
+  j["arrival"] = {{"held", jf.held}, {"duplicates_replaced", c.duplicates_replaced}};
+  j["episodes"] = {{"open", jf.episodes_open}, {"opened", jf.episodes_opened}, {"closed", jf.episodes_closed}};
+  if (jf.fdr_enabled) {
+    j["fdr"] = {{"open_step", jf.fdr_open_step ? json(*jf.fdr_open_step) : json(nullptr)},
+                {"waiting_records", jf.fdr_waiting},
+                {"steps_released_by_rule", jf.fdr_steps_released}};
   }
-  j["alert_log"] = {{"path", alert_log_->path()}, {"bytes", alert_log_->bytes()}};
-  j["checkpoint"] = {{"path", config_->service.checkpoint_path},
-                     {"written", checkpoints_written_},
-                     {"failures", checkpoint_failures_},
-                     {"age_seconds", unix_now() - last_checkpoint_unix_}};
-  j["reloads"] = {{"applied", reloads_}, {"refused", reload_failures_}};
+  j["queue"] = {{"lines", handoff_->queued_lines()}, {"capacity", handoff_->capacity()}};
+  j["alert_log"] = {{"path", jf.alert_log_path}, {"bytes", jf.alert_log_bytes}};
+  j["checkpoint"] = {{"path", service_.checkpoint_path},
+                     {"written", jf.checkpoints_written},
+                     {"failures", jf.checkpoint_failures},
+                     {"age_seconds", unix_now() - jf.last_checkpoint_unix}};
+  j["reloads"] = {{"applied", jf.reloads_applied}, {"refused", jf.reloads_refused}};
   json sources = json::array();
+  std::size_t k = 0;  // index into jf.sources, in all_figures() order
   for (const auto& g : follows_) {
     json files = json::array();
     for (const auto& [path, f] : g->files) {
-      const std::uint64_t done = f->consumed();
+      const std::uint64_t judged = judged_bytes(jf, path);
       files.push_back({{"path", path},
                        {"open", f->is_open()},
-                       {"offset", done},
+                       {"offset", judged},
+                       {"read", f->consumed()},
                        {"size", f->size_seen()},
-                       {"lag_bytes", f->size_seen() > done ? f->size_seen() - done : 0}});
+                       {"lag_bytes", f->size_seen() > judged ? f->size_seen() - judged : 0}});
     }
     sources.push_back({{"name", g->figures.name}, {"kind", "follow"}, {"pattern", g->config.path},
-                       {"records", g->figures.records}, {"rejected", g->figures.rejected}, {"files", files}});
+                       {"records", jf.sources[k].first}, {"rejected", jf.sources[k].second}, {"files", files}});
+    ++k;
   }
   for (const auto& f : socket_figures_) {
-    json s = {{"name", f->name}, {"kind", f->kind}, {"records", f->records}, {"rejected", f->rejected}};
+    json s = {{"name", f->name}, {"kind", f->kind}, {"records", jf.sources[k].first}, {"rejected", jf.sources[k].second}};
+    ++k;
     if (f->kind == "tcp") {
       s["connections"] = f->connections;
       s["connections_refused"] = f->connections_refused;
     }
+    if (f->kind == "udp") s["dropped_queue_full"] = f->dropped_queue_full;
     sources.push_back(s);
   }
   j["sources"] = sources;
   json last = json::array();
-  for (const std::string& a : intake_->last_alerts()) last.push_back(json::parse(a));
+  for (const std::string& a : jf.last_alerts) last.push_back(json::parse(a));
   j["last_alerts"] = last;
   return j.dump(1) + "\n";
 }
 
 std::string Server::metrics_text() const {
-  const Engine& e = intake_->engine();
-  const EngineCounters& c = e.counters();
+  const JudgedFigures jf = judge_->snapshot();
+  const EngineCounters& c = jf.counters;
   std::string m;
   m += "# TYPE tallyd_records counter\n# HELP tallyd_records Records offered to the engine.\n";
   m += fmt::format("tallyd_records_total {}\n", c.records);
@@ -102,41 +112,49 @@ std::string Server::metrics_text() const {
   m += fmt::format("tallyd_alerts_total{{direction=\"high\"}} {}\n", c.alerts_high);
   m += fmt::format("tallyd_alerts_total{{direction=\"low\"}} {}\n", c.alerts_low);
   m += "# TYPE tallyd_held_records gauge\n# HELP tallyd_held_records Records held back for late arrivals ([arrival]).\n";
-  m += fmt::format("tallyd_held_records {}\n", e.held_count());
+  m += fmt::format("tallyd_held_records {}\n", jf.held);
   m += "# TYPE tallyd_silent_series gauge\n# HELP tallyd_silent_series Series reported silent and not heard from since.\n";
-  m += fmt::format("tallyd_silent_series {}\n", e.silence().silent_count());
+  m += fmt::format("tallyd_silent_series {}\n", jf.silent_now);
   m += "# TYPE tallyd_episodes_open gauge\n# HELP tallyd_episodes_open Episodes open now (series and direction with an alert not yet followed by enough quiet records).\n";
-  m += fmt::format("tallyd_episodes_open {}\n", e.episodes().open_count());
+  m += fmt::format("tallyd_episodes_open {}\n", jf.episodes_open);
   m += "# TYPE tallyd_episodes_opened counter\n# HELP tallyd_episodes_opened Episodes opened.\n";
-  m += fmt::format("tallyd_episodes_opened_total {}\n", e.episodes().totals().opened);
+  m += fmt::format("tallyd_episodes_opened_total {}\n", jf.episodes_opened);
   m += "# TYPE tallyd_episodes_closed counter\n# HELP tallyd_episodes_closed Episodes closed.\n";
-  m += fmt::format("tallyd_episodes_closed_total {}\n", e.episodes().totals().closed);
+  m += fmt::format("tallyd_episodes_closed_total {}\n", jf.episodes_closed);
   m += "# TYPE tallyd_fdr_waiting_records gauge\n# HELP tallyd_fdr_waiting_records Judged records waiting for their time step to be released ([fdr]).\n";
-  m += fmt::format("tallyd_fdr_waiting_records {}\n", e.fdr_state().pending.size());
+  m += fmt::format("tallyd_fdr_waiting_records {}\n", jf.fdr_waiting);
   m += "# TYPE tallyd_fdr_steps_released counter\n# HELP tallyd_fdr_steps_released Time steps released by the service's quiet rule ([fdr] release_delay, release_idle).\n";
-  m += fmt::format("tallyd_fdr_steps_released_total {}\n", intake_->steps_released());
+  m += fmt::format("tallyd_fdr_steps_released_total {}\n", jf.fdr_steps_released);
   m += "# TYPE tallyd_series gauge\n# HELP tallyd_series Series with a model.\n";
-  m += fmt::format("tallyd_series {}\n", e.series_count());
+  m += fmt::format("tallyd_series {}\n", jf.series);
   m += "# TYPE tallyd_checkpoint_age_seconds gauge\n# HELP tallyd_checkpoint_age_seconds Seconds since the last checkpoint was written.\n";
-  m += fmt::format("tallyd_checkpoint_age_seconds {}\n", unix_now() - last_checkpoint_unix_);
+  m += fmt::format("tallyd_checkpoint_age_seconds {}\n", unix_now() - jf.last_checkpoint_unix);
+  m += "# TYPE tallyd_queued_lines gauge\n# HELP tallyd_queued_lines Lines read and waiting to be judged.\n";
+  m += fmt::format("tallyd_queued_lines {}\n", handoff_->queued_lines());
   m += "# TYPE tallyd_source_records counter\n# HELP tallyd_source_records Records parsed, by source.\n";
-  for (const SourceFigures* f : all_figures())
-    m += fmt::format("tallyd_source_records_total{{source=\"{}\"}} {}\n", label_value(f->name), f->records);
-  m += "# TYPE tallyd_follow_offset_bytes gauge\n# HELP tallyd_follow_offset_bytes Bytes of a followed file handed to the engine.\n";
+  const std::vector<const SourceFigures*> figures = all_figures();
+  for (std::size_t k = 0; k < figures.size(); ++k)
+    m += fmt::format("tallyd_source_records_total{{source=\"{}\"}} {}\n", label_value(figures[k]->name),
+                     jf.sources[k].first);
+  m += "# TYPE tallyd_udp_dropped counter\n# HELP tallyd_udp_dropped Datagrams dropped unread because the judging queue was full.\n";
+  for (const SourceFigures* f : figures)
+    if (f->kind == "udp")
+      m += fmt::format("tallyd_udp_dropped_total{{source=\"{}\"}} {}\n", label_value(f->name), f->dropped_queue_full);
+  m += "# TYPE tallyd_follow_offset_bytes gauge\n# HELP tallyd_follow_offset_bytes Bytes of a followed file judged.\n";
   for (const auto& g : follows_)
     for (const auto& [path, f] : g->files)
       m += fmt::format("tallyd_follow_offset_bytes{{source=\"{}\",path=\"{}\"}} {}\n", label_value(g->figures.name),
-                       label_value(path), f->consumed());
-  m += "# TYPE tallyd_follow_lag_bytes gauge\n# HELP tallyd_follow_lag_bytes Bytes of a followed file not yet handed out.\n";
+                       label_value(path), judged_bytes(jf, path));
+  m += "# TYPE tallyd_follow_lag_bytes gauge\n# HELP tallyd_follow_lag_bytes Bytes of a followed file not yet judged (read or not).\n";
   for (const auto& g : follows_)
     for (const auto& [path, f] : g->files) {
-      const std::uint64_t done = f->consumed();
+      const std::uint64_t judged = judged_bytes(jf, path);
       m += fmt::format("tallyd_follow_lag_bytes{{source=\"{}\",path=\"{}\"}} {}\n", label_value(g->figures.name),
-                       label_value(path), f->size_seen() > done ? f->size_seen() - done : 0);
+                       label_value(path), f->size_seen() > judged ? f->size_seen() - judged : 0);
     }
   m += "# TYPE tallyd_processing_latency_seconds histogram\n"
        "# HELP tallyd_processing_latency_seconds From a line's bytes read to its record judged and any alert written.\n";
-  const LatencyHistogram& h = intake_->latency();
+  const LatencyHistogram& h = jf.latency;
   std::uint64_t cumulative = 0;
   for (std::size_t i = 0; i < kLatencyBounds.size(); ++i) {
     cumulative += h.counts[i];

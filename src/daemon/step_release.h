@@ -8,7 +8,8 @@
 //   - no line has been read for spec.release_idle, so a backlog (a complete
 //     file, a restart catching up) is read to its end first, and a step of
 //     past times is released after the whole backlog, exactly where replay
-//     would release it.
+//     would release it. (The judging thread also waits until no line read
+//     is left in its queue: daemon/judge_thread.h.)
 // A graceful stop does not release: the open step and its waiting records
 // go into the checkpoint and the rule applies again after the restart.
 #pragma once
