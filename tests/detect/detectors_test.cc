@@ -34,6 +34,19 @@ Observation record(std::int64_t count, int week) {
   return o;
 }
 
+// Weekly series as the engine-level tests here fit them: quasi-Poisson, a
+// yearly season with `harmonics` pairs, a two-year window, judged from week 52.
+SettingsTable weekly_settings(int harmonics, bool trend = false) {
+  SettingsTable settings;
+  ModelSpec& m = settings.defaults.model;
+  m.family = glm::Family::quasipoisson;
+  m.trend = trend;
+  m.seasons = {Season{Seconds{static_cast<std::int64_t>(kDaysPerYear * kSecondsPerDay)}, harmonics}};
+  m.window = Window{std::nullopt, 104};
+  m.min_history = 52;
+  return settings;
+}
+
 }  // namespace
 
 TEST_CASE("low-count run: in-control alert rate per record at or below its alpha", "[detect]") {
@@ -137,12 +150,7 @@ TEST_CASE("every detector's in-control alarm rate on fitted models of outbreak-f
   // low-run alpha 0.01, BH at q = 0.1 over the 40 series of each week.
   // Each rate must stay at or below nominal plus 3 binomial standard errors
   // (Monte Carlo error of the rate, common practice).
-  SettingsTable settings;
-  ModelSpec& m = settings.defaults.model;
-  m.family = glm::Family::quasipoisson;
-  m.seasons = {Season{Seconds{static_cast<std::int64_t>(kDaysPerYear * kSecondsPerDay)}, 1}};
-  m.window = Window{std::nullopt, 104};
-  m.min_history = 52;
+  SettingsTable settings = weekly_settings(1);
   AlertSpec& al = settings.defaults.alert;
   al.alpha = 0.01;
   al.direction = Direction::both;
@@ -208,12 +216,7 @@ TEST_CASE("fitted model: a sustained doubling of a mean-5 weekly series is flagg
   // series of mean 5 per week, two years in control (quasi-Poisson, yearly
   // season), then the rate doubles for 8 weeks. Shift factor 2, ARL0 500.
   // "Most replicates": more than half flagged within 4 weeks of the change.
-  SettingsTable settings;
-  ModelSpec& m = settings.defaults.model;
-  m.family = glm::Family::quasipoisson;
-  m.seasons = {Season{Seconds{static_cast<std::int64_t>(kDaysPerYear * kSecondsPerDay)}, 1}};
-  m.window = Window{std::nullopt, 104};
-  m.min_history = 52;
+  SettingsTable settings = weekly_settings(1);
   settings.defaults.alert.direction = Direction::high;
   settings.defaults.detect.shift = true;
   settings.defaults.detect.shift_arl_records = 500;
@@ -253,13 +256,7 @@ TEST_CASE("shift CUSUM on fitted models: realised in-control run length brackets
   // here). The fits do not depend on the CUSUM (alerted_weight 1), so the
   // held-error limit is run on the same predictions: it must miss the target
   // (too long), which shows the check can fail.
-  SettingsTable settings;
-  ModelSpec& m = settings.defaults.model;
-  m.family = glm::Family::quasipoisson;
-  m.trend = true;
-  m.seasons = {Season{Seconds{static_cast<std::int64_t>(kDaysPerYear * kSecondsPerDay)}, 2}};
-  m.window = Window{std::nullopt, 104};
-  m.min_history = 52;
+  SettingsTable settings = weekly_settings(2, true);
   settings.defaults.alert.direction = Direction::low;
   DetectSpec& d = settings.defaults.detect;
   d.shift = true;
