@@ -98,12 +98,23 @@ std::string Server::status_json() const {
   return j.dump(1) + "\n";
 }
 
+namespace {
+
+// One metric without labels, in the OpenMetrics text format: its TYPE and
+// HELP lines, then its sample (a counter's sample carries the _total suffix).
+template <typename Value>
+void add_scalar(std::string& m, std::string_view name, std::string_view type, std::string_view help, Value value) {
+  m += fmt::format("# TYPE {} {}\n# HELP {} {}\n", name, type, name, help);
+  m += fmt::format("{}{} {}\n", name, type == "counter" ? "_total" : "", value);
+}
+
+}  // namespace
+
 std::string Server::metrics_text() const {
   const JudgedFigures jf = judge_->snapshot();
   const EngineCounters& c = jf.counters;
   std::string m;
-  m += "# TYPE tallyd_records counter\n# HELP tallyd_records Records offered to the engine.\n";
-  m += fmt::format("tallyd_records_total {}\n", c.records);
+  add_scalar(m, "tallyd_records", "counter", "Records offered to the engine.", c.records);
   m += "# TYPE tallyd_rejections counter\n# HELP tallyd_rejections Refused lines and records, by reason.\n";
   for (std::size_t i = 0; i < kRejectReasonCount; ++i)
     m += fmt::format("tallyd_rejections_total{{reason=\"{}\"}} {}\n", reject_label(static_cast<RejectReason>(i)),
@@ -111,26 +122,16 @@ std::string Server::metrics_text() const {
   m += "# TYPE tallyd_alerts counter\n# HELP tallyd_alerts Alerts written, by direction.\n";
   m += fmt::format("tallyd_alerts_total{{direction=\"high\"}} {}\n", c.alerts_high);
   m += fmt::format("tallyd_alerts_total{{direction=\"low\"}} {}\n", c.alerts_low);
-  m += "# TYPE tallyd_held_records gauge\n# HELP tallyd_held_records Records held back for late arrivals ([arrival]).\n";
-  m += fmt::format("tallyd_held_records {}\n", jf.held);
-  m += "# TYPE tallyd_silent_series gauge\n# HELP tallyd_silent_series Series reported silent and not heard from since.\n";
-  m += fmt::format("tallyd_silent_series {}\n", jf.silent_now);
-  m += "# TYPE tallyd_episodes_open gauge\n# HELP tallyd_episodes_open Episodes open now (series and direction with an alert not yet followed by enough quiet records).\n";
-  m += fmt::format("tallyd_episodes_open {}\n", jf.episodes_open);
-  m += "# TYPE tallyd_episodes_opened counter\n# HELP tallyd_episodes_opened Episodes opened.\n";
-  m += fmt::format("tallyd_episodes_opened_total {}\n", jf.episodes_opened);
-  m += "# TYPE tallyd_episodes_closed counter\n# HELP tallyd_episodes_closed Episodes closed.\n";
-  m += fmt::format("tallyd_episodes_closed_total {}\n", jf.episodes_closed);
-  m += "# TYPE tallyd_fdr_waiting_records gauge\n# HELP tallyd_fdr_waiting_records Judged records waiting for their time step to be released ([fdr]).\n";
-  m += fmt::format("tallyd_fdr_waiting_records {}\n", jf.fdr_waiting);
-  m += "# TYPE tallyd_fdr_steps_released counter\n# HELP tallyd_fdr_steps_released Time steps released by the service's quiet rule ([fdr] release_delay, release_idle).\n";
-  m += fmt::format("tallyd_fdr_steps_released_total {}\n", jf.fdr_steps_released);
-  m += "# TYPE tallyd_series gauge\n# HELP tallyd_series Series with a model.\n";
-  m += fmt::format("tallyd_series {}\n", jf.series);
-  m += "# TYPE tallyd_checkpoint_age_seconds gauge\n# HELP tallyd_checkpoint_age_seconds Seconds since the last checkpoint was written.\n";
-  m += fmt::format("tallyd_checkpoint_age_seconds {}\n", unix_now() - jf.last_checkpoint_unix);
-  m += "# TYPE tallyd_queued_lines gauge\n# HELP tallyd_queued_lines Lines read and waiting to be judged.\n";
-  m += fmt::format("tallyd_queued_lines {}\n", handoff_->queued_lines());
+  add_scalar(m, "tallyd_held_records", "gauge", "Records held back for late arrivals ([arrival]).", jf.held);
+  add_scalar(m, "tallyd_silent_series", "gauge", "Series reported silent and not heard from since.", jf.silent_now);
+  add_scalar(m, "tallyd_episodes_open", "gauge", "Episodes open now (series and direction with an alert not yet followed by enough quiet records).", jf.episodes_open);
+  add_scalar(m, "tallyd_episodes_opened", "counter", "Episodes opened.", jf.episodes_opened);
+  add_scalar(m, "tallyd_episodes_closed", "counter", "Episodes closed.", jf.episodes_closed);
+  add_scalar(m, "tallyd_fdr_waiting_records", "gauge", "Judged records waiting for their time step to be released ([fdr]).", jf.fdr_waiting);
+  add_scalar(m, "tallyd_fdr_steps_released", "counter", "Time steps released by the service's quiet rule ([fdr] release_delay, release_idle).", jf.fdr_steps_released);
+  add_scalar(m, "tallyd_series", "gauge", "Series with a model.", jf.series);
+  add_scalar(m, "tallyd_checkpoint_age_seconds", "gauge", "Seconds since the last checkpoint was written.", unix_now() - jf.last_checkpoint_unix);
+  add_scalar(m, "tallyd_queued_lines", "gauge", "Lines read and waiting to be judged.", handoff_->queued_lines());
   m += "# TYPE tallyd_source_records counter\n# HELP tallyd_source_records Records parsed, by source.\n";
   const std::vector<const SourceFigures*> figures = all_figures();
   for (std::size_t k = 0; k < figures.size(); ++k)
