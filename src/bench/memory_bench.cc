@@ -73,18 +73,7 @@ int main(int argc, char** argv) {
   std::uint64_t fits = 0;
   {
     Engine engine(settings, limits);
-    bounds::Rng rng(99);
-    const TimePoint start = parse_time("2024-01-01T06:00:00Z").value();
-    Observation o;
-    for (long d = 0; d < window + extra; ++d) {
-      o.time = start + Seconds{d * 86400};
-      for (long s = 0; s < series; ++s) {
-        o.series = "s" + std::to_string(s);
-        o.exposure = 1;
-        o.count = rng.poisson(5.0 + static_cast<double>(s % 20));
-        engine.ingest(o);
-      }
-    }
+    bench::feed_daily(engine, series, window + extra);
     const double after = resident_kib();
     const double peak = peak_kib();
     for (const auto& [id, model] : engine.series()) fits += model->fits_done();

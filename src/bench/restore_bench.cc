@@ -127,18 +127,7 @@ int main(int argc, char** argv) {
 
   const auto t_build = std::chrono::steady_clock::now();
   Engine engine(settings, limits);
-  bounds::Rng rng(99);
-  const TimePoint start = parse_time("2024-01-01T06:00:00Z").value();
-  Observation o;
-  for (long d = 0; d < window + 1; ++d) {
-    o.time = start + Seconds{d * 86400};
-    for (long s = 0; s < series; ++s) {
-      o.series = "s" + std::to_string(s);
-      o.exposure = 1;
-      o.count = rng.poisson(5.0 + static_cast<double>(s % 20));
-      engine.ingest(o);
-    }
-  }
+  bench::feed_daily(engine, series, window + 1);
   std::printf("engine: %ld series, window %ld, built in %.1f s (not part of the figures)\n", series, window,
               seconds_since(t_build));
 
