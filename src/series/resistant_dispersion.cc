@@ -38,8 +38,13 @@ double reweighted_dispersion_factor(double threshold, double mean, double phi) {
   const double from = std::max(0.0, std::floor(mean - 10 * sd)), to = std::ceil(mean + 15 * sd + 5);
   const double step = std::max(1.0, std::floor((to - from) / 400));
   double mass = 0, weight = 0, weighted_square = 0;
+  // Count by count, P(Y = y + 1) follows from P(Y = y) by the pmf's ratio
+  // (one multiplication instead of three lgamma calls per term).
+  double pmf = std::exp(log_pmf(from));
   for (double y = from; y <= to; y += step) {
-    const double p = std::exp(log_pmf(y)) * step;
+    if (step > 1) pmf = std::exp(log_pmf(y));
+    const double p = pmf * step;
+    if (step == 1) pmf *= poisson ? mean / (y + 1) : (y + theta) / (y + 1) * (mean / (mean + theta));
     if (!(p > 0)) continue;
     const double s = anscombe_scale * (std::cbrt(y * y) - mu_23);
     const double v = s > threshold ? 1 / (s * s) : 1.0;
