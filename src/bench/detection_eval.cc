@@ -15,6 +15,7 @@
 //                        [--family quasipoisson|negbin] [--scenario I]
 //                        [--configs plain,resistant,...] [--past-outbreaks K]
 //                        [--shift-error fresh|held] [--dump FILE]
+//                        [--reweight-threshold X] [--reweight-rounds R]
 //
 // --past-outbreaks K also places K outbreaks of the scenario's kind in the
 // training years of every series (Noufaily et al. 2013 likewise put outbreaks
@@ -191,8 +192,15 @@ bool counts_for(const Alert& a, const Scenario& s) {
 // h or l, the watched one): what the
 // CUSUM's limit reads (detect::in_control_of) and the simulated mean, so limit
 // methods can be compared on the same fits (cusum_limit_eval) without refitting.
-void run(int si, const Scenario& sc, const Config& cfg, glm::Family family, ShiftError shift_error,
-         const std::vector<Series>& data, Tally& tally, std::FILE* dump = nullptr) {
+// How the resistant configurations reweight (model.reweight_threshold,
+// model.reweight_rounds).
+struct Resistance {
+  double threshold = ModelSpec{}.reweight_threshold;
+  std::size_t rounds = ModelSpec{}.reweight_rounds;
+};
+
+void run(int si, const Scenario& sc, const Config& cfg, const Resistance& resistance, glm::Family family,
+         ShiftError shift_error, const std::vector<Series>& data, Tally& tally, std::FILE* dump = nullptr) {
   SettingsTable settings;
   ModelSpec& m = settings.defaults.model;
   m.family = family;
@@ -201,6 +209,8 @@ void run(int si, const Scenario& sc, const Config& cfg, glm::Family family, Shif
   m.window = Window{std::nullopt, 156};  // 3 years of weeks
   m.min_history = 52;
   m.reweight = cfg.reweight;
+  m.reweight_threshold = resistance.threshold;
+  m.reweight_rounds = resistance.rounds;
   m.alerted_weight = cfg.alerted_weight;
   AlertSpec& al = settings.defaults.alert;
   al.alpha = 0.001;
@@ -330,12 +340,15 @@ int main(int argc, char** argv) {
   ShiftError shift_error = DetectSpec{}.shift_error;
   std::uint64_t seed = 2013;
   glm::Family family = glm::Family::quasipoisson;
+  Resistance resistance;
   for (int i = 1; i + 1 < argc; i += 2) {
     const std::string k = argv[i], v = argv[i + 1];
     if (k == "--series") n = std::atoi(v.c_str());
     else if (k == "--seed") seed = std::strtoull(v.c_str(), nullptr, 10);
     else if (k == "--arl-series") arl_series = std::atoi(v.c_str());
     else if (k == "--past-outbreaks") past = std::atoi(v.c_str());
+    else if (k == "--reweight-threshold") resistance.threshold = std::atof(v.c_str());
+    else if (k == "--reweight-rounds") resistance.rounds = static_cast<std::size_t>(std::max(1, std::atoi(v.c_str())));
     else if (k == "--scenario") only = std::atoi(v.c_str());
     else if (k == "--configs") wanted = "," + v + ",";
     else if (k == "--shift-error" && (v == "fresh" || v == "held"))
@@ -352,7 +365,8 @@ int main(int argc, char** argv) {
     else {
       std::fprintf(stderr,
                    "usage: detection_eval [--series N] [--seed S] [--arl-series M] [--family quasipoisson|negbin] "
-                   "[--scenario I] [--configs a,b] [--past-outbreaks K] [--shift-error fresh|held] [--dump FILE]\n");
+                   "[--scenario I] [--configs a,b] [--past-outbreaks K] [--shift-error fresh|held] [--dump FILE] "
+                   "[--reweight-threshold X] [--reweight-rounds R]\n");
       return 1;
     }
   }
@@ -392,7 +406,7 @@ int main(int argc, char** argv) {
       if (!relevant) continue;
       if (!wanted.empty() && wanted.find("," + std::string(cfg.name) + ",") == std::string::npos) continue;
       Tally t;
-      run(si, sc, cfg, family, shift_error, data, t);
+      run(si, sc, cfg, resistance, family, shift_error, data, t);
       std::printf("%-3d %-48s %-20s %-28s %-21s %-21s %6.1f\n", si, sc.name, cfg.name,
                   show(ratio(t.null_alert_weeks, t.null_weeks), "%.5f").c_str(),
                   show(ratio(t.detected, std::vector<double>(t.detected.size(), 1.0)), "%.3f").c_str(),
@@ -429,7 +443,7 @@ int main(int argc, char** argv) {
       std::vector<Series> nulls;
       for (int i = 0; i < arl_series; ++i) nulls.push_back(simulate(sc, false, arl_rng, past));
       Tally t;
-      run(si, sc, configs[3], family, shift_error, nulls, t, dump);
+      run(si, sc, configs[3], resistance, family, shift_error, nulls, t, dump);
       char line[512];
       const double judged = std::max(1.0, sum(t.cusum_records));
       std::snprintf(line, sizeof line,
