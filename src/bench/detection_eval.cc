@@ -15,7 +15,13 @@
 //                        [--family quasipoisson|negbin] [--scenario I]
 //                        [--configs plain,resistant,...] [--past-outbreaks K]
 //                        [--shift-error fresh|held] [--dump FILE]
-//                        [--reweight-threshold X] [--reweight-rounds R]
+//                        [--reweight-threshold X] [--reweight-rounds R] [--extra-nulls M]
+//
+// --extra-nulls M adds M null series per scenario (after the others, so the
+// first ones are unchanged): more null weeks pin down the thresholds of the
+// matched comparison. Configuration `resistant@1` is `resistant` with the
+// residual threshold 1 of Farrington et al. (1996); it runs only when named
+// in --configs.
 //
 // --past-outbreaks K also places K outbreaks of the scenario's kind in the
 // training years of every series (Noufaily et al. 2013 likewise put outbreaks
@@ -73,6 +79,7 @@ struct Config {
   double alerted_weight;
   bool shift;
   bool low_run;
+  double threshold = 0;  // model.reweight_threshold; 0: --reweight-threshold's (default the model's)
 };
 
 struct Series {
@@ -210,7 +217,7 @@ void run(int si, const Scenario& sc, const Config& cfg, const Resistance& resist
   m.window = Window{std::nullopt, 156};  // 3 years of weeks
   m.min_history = 52;
   m.reweight = cfg.reweight;
-  m.reweight_threshold = resistance.threshold;
+  m.reweight_threshold = cfg.threshold > 0 ? cfg.threshold : resistance.threshold;
   m.reweight_rounds = resistance.rounds;
   m.alerted_weight = cfg.alerted_weight;
   AlertSpec& al = settings.defaults.alert;
@@ -379,7 +386,7 @@ std::string show_arl(const Tally& t) {
 }  // namespace
 
 int main(int argc, char** argv) {
-  int n = 100, arl_series = 0, only = -1, past = 0;
+  int n = 100, arl_series = 0, only = -1, past = 0, extra_nulls = 0;
   std::string wanted;  // comma-separated configuration names; empty: all
   std::FILE* dump = nullptr;
   ShiftError shift_error = DetectSpec{}.shift_error;
@@ -391,6 +398,7 @@ int main(int argc, char** argv) {
     if (k == "--series") n = std::atoi(v.c_str());
     else if (k == "--seed") seed = std::strtoull(v.c_str(), nullptr, 10);
     else if (k == "--arl-series") arl_series = std::atoi(v.c_str());
+    else if (k == "--extra-nulls") extra_nulls = std::atoi(v.c_str());
     else if (k == "--past-outbreaks") past = std::atoi(v.c_str());
     else if (k == "--reweight-threshold") resistance.threshold = std::atof(v.c_str());
     else if (k == "--reweight-rounds") resistance.rounds = static_cast<std::size_t>(std::max(1, std::atoi(v.c_str())));
@@ -411,7 +419,7 @@ int main(int argc, char** argv) {
       std::fprintf(stderr,
                    "usage: detection_eval [--series N] [--seed S] [--arl-series M] [--family quasipoisson|negbin] "
                    "[--scenario I] [--configs a,b] [--past-outbreaks K] [--shift-error fresh|held] [--dump FILE] "
-                   "[--reweight-threshold X] [--reweight-rounds R]\n");
+                   "[--reweight-threshold X] [--reweight-rounds R] [--extra-nulls M]\n");
       return 1;
     }
   }
@@ -429,10 +437,11 @@ int main(int argc, char** argv) {
       {"resistant+alerted0", true, 0.0, false, false},
       {"resistant+shift", true, 1.0, true, false},
       {"resistant+low_run", true, 1.0, false, true},
+      {"resistant@1", true, 1.0, false, false, 1.0},  // Farrington et al. (1996)'s threshold
   };
   std::printf("family %s, %d null + %d outbreak series per scenario, seed %llu, %d past outbreaks per series in the "
               "training years, shift_error %s; 95%% intervals in brackets\n",
-              family == glm::Family::negbin ? "negbin" : "quasipoisson", n, n, static_cast<unsigned long long>(seed), past,
+              family == glm::Family::negbin ? "negbin" : "quasipoisson", n + extra_nulls, n, static_cast<unsigned long long>(seed), past,
               shift_error == ShiftError::held ? "held" : "fresh");
   std::printf("%-3s %-48s %-20s %-28s %-21s %-21s %6s\n", "#", "scenario", "config", "FPR/week", "POD", "sens", "delay");
   std::vector<std::string> paired_lines, matched_lines, arl_lines;
@@ -444,12 +453,17 @@ int main(int argc, char** argv) {
     std::vector<Series> data;
     for (int i = 0; i < n; ++i) data.push_back(simulate(sc, false, rng, past));
     for (int i = 0; i < n; ++i) data.push_back(simulate(sc, true, rng, past));
+    // After the outbreak series, so that the first 2n series stay those of
+    // runs without them.
+    for (int i = 0; i < extra_nulls; ++i) data.push_back(simulate(sc, false, rng, past));
     Tally plain;
     for (const Config& cfg : configs) {
       const bool relevant = (sc.kind == Scenario::silent) ? (std::string(cfg.name) == "plain" || cfg.low_run || cfg.shift)
                                                           : !cfg.low_run;
       if (!relevant) continue;
-      if (!wanted.empty() && wanted.find("," + std::string(cfg.name) + ",") == std::string::npos) continue;
+      const bool named = !wanted.empty() && wanted.find("," + std::string(cfg.name) + ",") != std::string::npos;
+      if (!wanted.empty() && !named) continue;
+      if (cfg.threshold > 0 && !named) continue;  // only on request
       Tally t;
       run(si, sc, cfg, resistance, family, shift_error, data, t);
       std::printf("%-3d %-48s %-20s %-28s %-21s %-21s %6.1f\n", si, sc.name, cfg.name,
@@ -461,15 +475,16 @@ int main(int argc, char** argv) {
         plain = t;
         continue;
       }
-      if (!cfg.shift && !cfg.low_run && cfg.alerted_weight == 1.0 && !plain.null_week_p.empty()) {
-        const std::size_t k = alerted_null_weeks(plain, 0.001);
+      for (double level : {0.001, 0.01}) {
+        if (cfg.shift || cfg.low_run || cfg.alerted_weight != 1.0 || plain.null_week_p.empty()) break;
+        const std::size_t k = alerted_null_weeks(plain, level);
         const std::vector<double> mine = detected_at(t, k), theirs = detected_at(plain, k);
-        const Interval boot = matched_bootstrap(t, plain, 0.001, 1000, seed + 7);
+        const Interval boot = matched_bootstrap(t, plain, level, 1000, seed + 7);
         char line[320];
         std::snprintf(line, sizeof line,
-                      "%-3d %-48s %-20s at <= %zu of %zu null weeks alerted: POD %s vs plain %s, dPOD %s, "
+                      "%-3d %-48s %-20s %-5g at <= %zu of %zu null weeks alerted: POD %s vs plain %s, dPOD %s, "
                       "bootstrap [%+.3f,%+.3f]",
-                      si, sc.name, cfg.name, k, t.null_week_p.size(),
+                      si, sc.name, cfg.name, level, k, t.null_week_p.size(),
                       show(ratio(mine, std::vector<double>(mine.size(), 1.0)), "%.3f").c_str(),
                       show(ratio(theirs, std::vector<double>(theirs.size(), 1.0)), "%.3f").c_str(),
                       show(paired(mine, theirs), "%+.3f").c_str(), boot.lo, boot.hi);
