@@ -104,13 +104,7 @@ bool FeedFile::emit(const Split& split, FeedItem& out) {
                               " bytes and was skipped; it starts " + quote_value(text)};
     return true;
   }
-  ParseOutcome outcome = parser_->parse(text, where_);
-  switch (outcome.kind()) {
-    case LineKind::record: out.value = std::move(outcome.record()); return true;
-    case LineKind::rejected: out.value = std::move(outcome.rejection()); return true;
-    case LineKind::skip: return false;
-  }
-  return false;
+  return parser_->parse_into(text, where_, out) != LineKind::skip;
 }
 
 bool FeedFile::next(FeedItem& out) {
