@@ -115,7 +115,11 @@ bool FeedFile::next(FeedItem& out) {
     if (emit(Split{held.kind, held.text, held.number}, out)) return true;
   }
   while (true) {
-    const Split s = pull();
+    // The usual case, a line already buffered, straight from the splitter:
+    // through pull() the Split was copied back through memory once per line.
+    // (Asking the splitter again after need_more changes nothing.)
+    Split s = splitter_.next();
+    if (s.kind == SplitKind::need_more) s = pull();
     if (s.kind == SplitKind::need_more) {
       done_ = true;
       if (!read_failure_) return false;
