@@ -6,6 +6,7 @@
 #include <cmath>
 #include <cstdio>
 
+#include "feed/utc_stamp.h"
 #include "feed/utf8.h"
 
 namespace tallyd {
@@ -172,6 +173,7 @@ FieldCheck check_series(std::string_view text) {
 }
 
 FieldCheck read_time(std::string_view text, TimePoint& time) {
+  if (read_utc_stamp(text, time)) return std::nullopt;  // the usual layout; the rest below
   Result<TimePoint> parsed = parse_time(text);
   if (!parsed) return fault(RejectReason::bad_time, parsed.error().message);
   time = *parsed;
