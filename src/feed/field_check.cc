@@ -27,6 +27,9 @@ enum class Number : std::uint8_t { ok, not_a_number, not_finite };
 constexpr std::size_t kMaxPlainDigits = 15;
 constexpr double kPowersOfTen[kMaxPlainDigits + 1] = {1e0, 1e1, 1e2,  1e3,  1e4,  1e5,  1e6,  1e7,
                                                       1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15};
+constexpr std::uint64_t kPowersOfTenWhole[kMaxPlainDigits + 1] = {
+    1, 10, 100, 1000, 10000, 100000, 1000000, 10000000, 100000000, 1000000000, 10000000000, 100000000000,
+    1000000000000, 10000000000000, 100000000000000, 1000000000000000};
 
 // `text` as digits with at most one '.' between digits, and at most
 // kMaxPlainDigits digits: stores its value, correctly rounded, as fast_float
@@ -38,15 +41,20 @@ bool parse_plain_decimal(std::string_view text, double& value) {
   std::uint64_t digits = 0;
   std::size_t i = 0;
   while (i < size && text[i] >= '0' && text[i] <= '9') digits = digits * 10 + static_cast<std::uint64_t>(text[i++] - '0');
-  std::size_t fraction_digits = 0;
-  if (i < size) {
-    if (i == 0 || text[i] != '.') return false;
-    const std::size_t point = i++;
-    while (i < size && text[i] >= '0' && text[i] <= '9') digits = digits * 10 + static_cast<std::uint64_t>(text[i++] - '0');
-    fraction_digits = i - point - 1;
-    if (fraction_digits == 0 || i < size || size - 1 > kMaxPlainDigits) return false;
+  if (i == size) {
+    value = static_cast<double>(digits);  // exact: fewer than 2^53
+    return true;
   }
-  value = static_cast<double>(digits) / kPowersOfTen[fraction_digits];
+  if (i == 0 || text[i] != '.') return false;
+  const std::uint64_t whole = digits;
+  const std::size_t point = i++;
+  while (i < size && text[i] >= '0' && text[i] <= '9') digits = digits * 10 + static_cast<std::uint64_t>(text[i++] - '0');
+  const std::size_t fraction_digits = i - point - 1;
+  if (fraction_digits == 0 || i < size || size - 1 > kMaxPlainDigits) return false;
+  // A whole value written with a zero fraction ("2.0", common for efforts)
+  // is its whole part exactly; the division is the slow step otherwise.
+  value = digits == whole * kPowersOfTenWhole[fraction_digits] ? static_cast<double>(whole)
+                                                               : static_cast<double>(digits) / kPowersOfTen[fraction_digits];
   return true;
 }
 
@@ -148,17 +156,12 @@ bool is_blank_or_comment(std::string_view line) {
 }
 
 FieldCheck check_series(std::string_view text) {
-  // The usual id is printable ASCII: then it is good when it is not all
-  // spaces. Anything else (tabs, bytes >= 0x7F, controls) takes the full
-  // checks below.
+  // The usual id is printable ASCII and does not start with a space: then it
+  // is good. Anything else (tabs, bytes >= 0x7F, controls, a leading space
+  // that might begin an all-blank id) takes the full checks below.
   std::size_t i = 0;
-  bool blank = true;
-  for (; i < text.size(); ++i) {
-    const unsigned char c = static_cast<unsigned char>(text[i]);
-    if (c < 0x20 || c >= 0x7F) break;
-    blank = blank && c == ' ';
-  }
-  if (i == text.size() && !blank) return std::nullopt;
+  while (i < text.size() && static_cast<unsigned char>(text[i] - 0x20) < 0x5F) ++i;
+  if (i == text.size() && i > 0 && text[0] != ' ') return std::nullopt;
 
   if (trim_blanks(text).empty()) return fault(RejectReason::bad_series, "series id is empty");
   if (const std::size_t bad = utf8_error_offset(text); bad != std::string_view::npos)
