@@ -40,21 +40,27 @@ bool parse_plain_decimal(std::string_view text, double& value) {
   if (size == 0 || size > kMaxPlainDigits + 1) return false;
   std::uint64_t digits = 0;
   std::size_t i = 0;
-  while (i < size && text[i] >= '0' && text[i] <= '9') digits = digits * 10 + static_cast<std::uint64_t>(text[i++] - '0');
+  while (i < size && text[i] >= '0' && text[i] <= '9')
+    digits = digits * 10 + static_cast<std::uint64_t>(text[i++] - '0');
   if (i == size) {
-    value = static_cast<double>(digits);  // exact: fewer than 2^53
+    if (size > kMaxPlainDigits) return false;
+    value = static_cast<double>(digits);  // exact: below 2^53
     return true;
   }
   if (i == 0 || text[i] != '.') return false;
   const std::uint64_t whole = digits;
   const std::size_t point = i++;
-  while (i < size && text[i] >= '0' && text[i] <= '9') digits = digits * 10 + static_cast<std::uint64_t>(text[i++] - '0');
+  while (i < size && text[i] >= '0' && text[i] <= '9')
+    digits = digits * 10 + static_cast<std::uint64_t>(text[i++] - '0');
   const std::size_t fraction_digits = i - point - 1;
   if (fraction_digits == 0 || i < size || size - 1 > kMaxPlainDigits) return false;
   // A whole value written with a zero fraction ("2.0", common for efforts)
   // is its whole part exactly; the division is the slow step otherwise.
-  value = digits == whole * kPowersOfTenWhole[fraction_digits] ? static_cast<double>(whole)
-                                                               : static_cast<double>(digits) / kPowersOfTen[fraction_digits];
+  if (digits == whole * kPowersOfTenWhole[fraction_digits]) {
+    value = static_cast<double>(whole);
+  } else {
+    value = static_cast<double>(digits) / kPowersOfTen[fraction_digits];
+  }
   return true;
 }
 

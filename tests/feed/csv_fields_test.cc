@@ -84,7 +84,8 @@ Reading reference_reading(std::string_view line) {
       std::string text;
       std::size_t k = b + 1;
       while (true) {
-        if (k >= line.size()) return Reading{"field " + std::to_string(number) + " opens a quote that is not closed on its line", {}};
+        if (k >= line.size())
+          return Reading{"field " + std::to_string(number) + " opens a quote that is not closed on its line", {}};
         if (line[k] == '"') {
           if (k + 1 < line.size() && line[k + 1] == '"') {
             text += '"';
