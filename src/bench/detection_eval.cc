@@ -16,6 +16,7 @@
 //                        [--configs plain,resistant,...] [--past-outbreaks K]
 //                        [--shift-error fresh|held] [--dump FILE]
 //                        [--reweight-threshold X] [--reweight-rounds R] [--extra-nulls M]
+//                        [--mean-correction on|off]
 //
 // --extra-nulls M adds M null series per scenario (after the others, so the
 // first ones are unchanged): more null weeks pin down the thresholds of the
@@ -205,6 +206,7 @@ bool counts_for(const Alert& a, const Scenario& s) {
 struct Resistance {
   double threshold = ModelSpec{}.reweight_threshold;
   std::size_t rounds = ModelSpec{}.reweight_rounds;
+  bool mean_correction = ModelSpec{}.reweight_mean_correction;
 };
 
 void run(int si, const Scenario& sc, const Config& cfg, const Resistance& resistance, glm::Family family,
@@ -219,6 +221,7 @@ void run(int si, const Scenario& sc, const Config& cfg, const Resistance& resist
   m.reweight = cfg.reweight;
   m.reweight_threshold = cfg.threshold > 0 ? cfg.threshold : resistance.threshold;
   m.reweight_rounds = resistance.rounds;
+  m.reweight_mean_correction = resistance.mean_correction;
   m.alerted_weight = cfg.alerted_weight;
   AlertSpec& al = settings.defaults.alert;
   al.alpha = 0.001;
@@ -399,6 +402,7 @@ int main(int argc, char** argv) {
     else if (k == "--seed") seed = std::strtoull(v.c_str(), nullptr, 10);
     else if (k == "--arl-series") arl_series = std::atoi(v.c_str());
     else if (k == "--extra-nulls") extra_nulls = std::atoi(v.c_str());
+    else if (k == "--mean-correction") resistance.mean_correction = v == "on";
     else if (k == "--past-outbreaks") past = std::atoi(v.c_str());
     else if (k == "--reweight-threshold") resistance.threshold = std::atof(v.c_str());
     else if (k == "--reweight-rounds") resistance.rounds = static_cast<std::size_t>(std::max(1, std::atoi(v.c_str())));
@@ -419,7 +423,7 @@ int main(int argc, char** argv) {
       std::fprintf(stderr,
                    "usage: detection_eval [--series N] [--seed S] [--arl-series M] [--family quasipoisson|negbin] "
                    "[--scenario I] [--configs a,b] [--past-outbreaks K] [--shift-error fresh|held] [--dump FILE] "
-                   "[--reweight-threshold X] [--reweight-rounds R] [--extra-nulls M]\n");
+                   "[--reweight-threshold X] [--reweight-rounds R] [--extra-nulls M] [--mean-correction on|off]\n");
       return 1;
     }
   }

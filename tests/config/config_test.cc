@@ -109,6 +109,7 @@ TEST_CASE("detector and resistant-training keys", "[config]") {
 reweight = false
 reweight_threshold = 3
 reweight_rounds = 4
+reweight_mean_correction = true
 alerted_weight = 0.25
 guard_records = 3
 [detect]
@@ -129,6 +130,7 @@ detect.shift = false
   CHECK_FALSE(d.model.reweight);
   CHECK(d.model.reweight_threshold == 3);
   CHECK(d.model.reweight_rounds == 4);
+  CHECK(d.model.reweight_mean_correction);
   CHECK(d.model.alerted_weight == 0.25);
   CHECK(d.model.guard_records == 3);
   CHECK(d.detect.shift);
