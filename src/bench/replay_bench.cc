@@ -182,11 +182,13 @@ struct Row {
   double seconds;
   EngineCounters counters;
   std::vector<signed char> verdicts;  // per record: 0 none, 1 high, -1 low (bound alerts), 2 not judged
+  double busy_seconds = 0;     // sharded: seconds the workers spent judging, summed
+  double offered_seconds = 0;  // sharded: seconds in batches times workers
 };
 
 Row run_single(const std::vector<Observation>& feed, const SettingsTable& settings) {
   Engine engine(settings);
-  Row row{0, {}, {}};
+  Row row{0, {}, {}, 0, 0};
   row.verdicts.resize(feed.size());
   const auto t0 = std::chrono::steady_clock::now();
   for (std::size_t i = 0; i < feed.size(); ++i) {
@@ -217,12 +219,10 @@ Row run_sharded(const std::vector<Observation>& feed, const SettingsTable& setti
     engine.ingest_batch(batch);
     seconds += std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
   }
-  double busy = 0;
-  for (const double b : engine.worker_busy_seconds()) busy += b;
-  const double offered = engine.batch_seconds() * workers;
-  std::printf("  %d workers busy %.2f s of %.2f s in batches: %.1f%% waiting for the slowest worker or a core\n",
-              workers, busy, offered, 100.0 * (offered - busy) / offered);
-  return {seconds, engine.counters(), {}};
+  Row row{seconds, engine.counters(), {}};
+  for (const double b : engine.worker_busy_seconds()) row.busy_seconds += b;
+  row.offered_seconds = engine.batch_seconds() * workers;
+  return row;
 }
 
 // `base` is the first row of the method in this run (refit every record,
@@ -262,6 +262,9 @@ int main(int argc, char** argv) {
         const std::size_t batch = static_cast<std::size_t>(std::max(a.batch > 0 ? a.batch : a.series, 1));
         const Row many = run_sharded(feed, settings, a.workers, batch);
         print_row(name.c_str(), screen ? "on" : "off", a.refit_every, a.workers, feed.size(), many, *base);
+        std::printf("  %d workers busy %.2f s of %.2f s in batches of %zu: %.1f%% waiting for the slowest worker or a core\n",
+                    a.workers, many.busy_seconds, many.offered_seconds, batch,
+                    100.0 * (many.offered_seconds - many.busy_seconds) / many.offered_seconds);
         std::printf("speed-up %d threads / 1: %.2fx; alerts %s\n", a.workers, one.seconds / many.seconds,
                     one.counters.alerts_high == many.counters.alerts_high &&
                             one.counters.alerts_low == many.counters.alerts_low
