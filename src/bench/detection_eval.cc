@@ -15,6 +15,14 @@
 //                        [--family quasipoisson|negbin] [--scenario I]
 //                        [--configs plain,resistant,...] [--past-outbreaks K]
 //                        [--shift-error fresh|held] [--dump FILE]
+//                        [--reweight-threshold X] [--reweight-rounds R] [--extra-nulls M]
+//                        [--mean-correction on|off]
+//
+// --extra-nulls M adds M null series per scenario (after the others, so the
+// first ones are unchanged): more null weeks pin down the thresholds of the
+// matched comparison. Configuration `resistant@1` is `resistant` with the
+// residual threshold 1 of Farrington et al. (1996); it runs only when named
+// in --configs.
 //
 // --past-outbreaks K also places K outbreaks of the scenario's kind in the
 // training years of every series (Noufaily et al. 2013 likewise put outbreaks
@@ -72,6 +80,7 @@ struct Config {
   double alerted_weight;
   bool shift;
   bool low_run;
+  double threshold = 0;  // model.reweight_threshold; 0: --reweight-threshold's (default the model's)
 };
 
 struct Series {
@@ -136,6 +145,7 @@ struct Tally {
   // The bound's p-value on the watched side: every scored null week, and the
   // smallest during each outbreak (for detection at a matched false-positive rate).
   std::vector<double> null_week_p, outbreak_min_p;
+  std::vector<std::size_t> null_week_from;  // per null series: its first entry in null_week_p
   // Null series, judged records: squared error of the fitted log mean against
   // the simulated one, and the model's own variance of it (eta_variance).
   double log_error_squares = 0, eta_variances = 0, log_errors = 0;
@@ -191,8 +201,16 @@ bool counts_for(const Alert& a, const Scenario& s) {
 // h or l, the watched one): what the
 // CUSUM's limit reads (detect::in_control_of) and the simulated mean, so limit
 // methods can be compared on the same fits (cusum_limit_eval) without refitting.
-void run(int si, const Scenario& sc, const Config& cfg, glm::Family family, ShiftError shift_error,
-         const std::vector<Series>& data, Tally& tally, std::FILE* dump = nullptr) {
+// How the resistant configurations reweight (model.reweight_threshold,
+// model.reweight_rounds).
+struct Resistance {
+  double threshold = ModelSpec{}.reweight_threshold;
+  std::size_t rounds = ModelSpec{}.reweight_rounds;
+  bool mean_correction = ModelSpec{}.reweight_mean_correction;
+};
+
+void run(int si, const Scenario& sc, const Config& cfg, const Resistance& resistance, glm::Family family,
+         ShiftError shift_error, const std::vector<Series>& data, Tally& tally, std::FILE* dump = nullptr) {
   SettingsTable settings;
   ModelSpec& m = settings.defaults.model;
   m.family = family;
@@ -201,6 +219,9 @@ void run(int si, const Scenario& sc, const Config& cfg, glm::Family family, Shif
   m.window = Window{std::nullopt, 156};  // 3 years of weeks
   m.min_history = 52;
   m.reweight = cfg.reweight;
+  m.reweight_threshold = cfg.threshold > 0 ? cfg.threshold : resistance.threshold;
+  m.reweight_rounds = resistance.rounds;
+  m.reweight_mean_correction = resistance.mean_correction;
   m.alerted_weight = cfg.alerted_weight;
   AlertSpec& al = settings.defaults.alert;
   al.alpha = 0.001;
@@ -259,6 +280,7 @@ void run(int si, const Scenario& sc, const Config& cfg, glm::Family family, Shif
       }
     }
     if (s.onset < 0) {
+      tally.null_week_from.push_back(tally.null_week_p.size() - static_cast<std::size_t>(weeks));
       tally.null_weeks.push_back(weeks);
       tally.null_alert_weeks.push_back(alert_weeks);
       tally.cusum_records.push_back(records);
@@ -287,6 +309,49 @@ std::vector<double> detected_at(const Tally& t, std::size_t null_alerts) {
   std::vector<double> out;
   for (double m : t.outbreak_min_p) out.push_back(m < threshold ? 1 : 0);
   return out;
+}
+
+// The paired dPOD at a matched false-positive rate with a percentile
+// bootstrap interval over series (Efron and Tibshirani 1993): null and
+// outbreak series are resampled with replacement, the same draws for both
+// configurations, and both thresholds are found again in every replicate.
+// Unlike the paired interval, this one includes the noise of the thresholds,
+// which rest on a few dozen null alerts.
+Interval matched_bootstrap(const Tally& mine, const Tally& plain, double alpha, int replicates, std::uint64_t seed) {
+  bounds::Rng rng(seed);
+  const std::size_t nulls = plain.null_week_from.size(), outbreaks = plain.outbreak_min_p.size();
+  std::vector<double> diffs, a, b;
+  for (int r = 0; r < replicates && nulls > 0 && outbreaks > 0; ++r) {
+    a.clear();
+    b.clear();
+    for (std::size_t i = 0; i < nulls; ++i) {
+      const std::size_t k = std::min(nulls - 1, static_cast<std::size_t>(rng.uniform() * static_cast<double>(nulls)));
+      const std::size_t to = k + 1 < nulls ? plain.null_week_from[k + 1] : plain.null_week_p.size();
+      a.insert(a.end(), mine.null_week_p.begin() + static_cast<long>(plain.null_week_from[k]),
+               mine.null_week_p.begin() + static_cast<long>(to));
+      b.insert(b.end(), plain.null_week_p.begin() + static_cast<long>(plain.null_week_from[k]),
+               plain.null_week_p.begin() + static_cast<long>(to));
+    }
+    const std::size_t allowed =
+        static_cast<std::size_t>(std::count_if(b.begin(), b.end(), [&](double p) { return p <= alpha; }));
+    const auto threshold = [allowed](std::vector<double>& p) {
+      if (allowed >= p.size()) return 1.0;
+      std::nth_element(p.begin(), p.begin() + static_cast<long>(allowed), p.end());
+      return p[allowed];
+    };
+    const double ta = threshold(a), tb = threshold(b);
+    double d = 0;
+    for (std::size_t i = 0; i < outbreaks; ++i) {
+      const std::size_t k =
+          std::min(outbreaks - 1, static_cast<std::size_t>(rng.uniform() * static_cast<double>(outbreaks)));
+      d += (mine.outbreak_min_p[k] < ta ? 1.0 : 0.0) - (plain.outbreak_min_p[k] < tb ? 1.0 : 0.0);
+    }
+    diffs.push_back(d / static_cast<double>(outbreaks));
+  }
+  if (diffs.empty()) return {NAN, NAN, NAN};
+  std::sort(diffs.begin(), diffs.end());
+  const auto at = [&](double q) { return diffs[static_cast<std::size_t>(q * static_cast<double>(diffs.size() - 1))]; };
+  return {at(0.5), at(0.025), at(0.975)};
 }
 
 std::size_t alerted_null_weeks(const Tally& t, double alpha) {
@@ -324,18 +389,23 @@ std::string show_arl(const Tally& t) {
 }  // namespace
 
 int main(int argc, char** argv) {
-  int n = 100, arl_series = 0, only = -1, past = 0;
+  int n = 100, arl_series = 0, only = -1, past = 0, extra_nulls = 0;
   std::string wanted;  // comma-separated configuration names; empty: all
   std::FILE* dump = nullptr;
   ShiftError shift_error = DetectSpec{}.shift_error;
   std::uint64_t seed = 2013;
   glm::Family family = glm::Family::quasipoisson;
+  Resistance resistance;
   for (int i = 1; i + 1 < argc; i += 2) {
     const std::string k = argv[i], v = argv[i + 1];
     if (k == "--series") n = std::atoi(v.c_str());
     else if (k == "--seed") seed = std::strtoull(v.c_str(), nullptr, 10);
     else if (k == "--arl-series") arl_series = std::atoi(v.c_str());
+    else if (k == "--extra-nulls") extra_nulls = std::atoi(v.c_str());
+    else if (k == "--mean-correction") resistance.mean_correction = v == "on";
     else if (k == "--past-outbreaks") past = std::atoi(v.c_str());
+    else if (k == "--reweight-threshold") resistance.threshold = std::atof(v.c_str());
+    else if (k == "--reweight-rounds") resistance.rounds = static_cast<std::size_t>(std::max(1, std::atoi(v.c_str())));
     else if (k == "--scenario") only = std::atoi(v.c_str());
     else if (k == "--configs") wanted = "," + v + ",";
     else if (k == "--shift-error" && (v == "fresh" || v == "held"))
@@ -352,7 +422,8 @@ int main(int argc, char** argv) {
     else {
       std::fprintf(stderr,
                    "usage: detection_eval [--series N] [--seed S] [--arl-series M] [--family quasipoisson|negbin] "
-                   "[--scenario I] [--configs a,b] [--past-outbreaks K] [--shift-error fresh|held] [--dump FILE]\n");
+                   "[--scenario I] [--configs a,b] [--past-outbreaks K] [--shift-error fresh|held] [--dump FILE] "
+                   "[--reweight-threshold X] [--reweight-rounds R] [--extra-nulls M] [--mean-correction on|off]\n");
       return 1;
     }
   }
@@ -370,10 +441,11 @@ int main(int argc, char** argv) {
       {"resistant+alerted0", true, 0.0, false, false},
       {"resistant+shift", true, 1.0, true, false},
       {"resistant+low_run", true, 1.0, false, true},
+      {"resistant@1", true, 1.0, false, false, 1.0},  // Farrington et al. (1996)'s threshold
   };
   std::printf("family %s, %d null + %d outbreak series per scenario, seed %llu, %d past outbreaks per series in the "
               "training years, shift_error %s; 95%% intervals in brackets\n",
-              family == glm::Family::negbin ? "negbin" : "quasipoisson", n, n, static_cast<unsigned long long>(seed), past,
+              family == glm::Family::negbin ? "negbin" : "quasipoisson", n + extra_nulls, n, static_cast<unsigned long long>(seed), past,
               shift_error == ShiftError::held ? "held" : "fresh");
   std::printf("%-3s %-48s %-20s %-28s %-21s %-21s %6s\n", "#", "scenario", "config", "FPR/week", "POD", "sens", "delay");
   std::vector<std::string> paired_lines, matched_lines, arl_lines;
@@ -385,14 +457,19 @@ int main(int argc, char** argv) {
     std::vector<Series> data;
     for (int i = 0; i < n; ++i) data.push_back(simulate(sc, false, rng, past));
     for (int i = 0; i < n; ++i) data.push_back(simulate(sc, true, rng, past));
+    // After the outbreak series, so that the first 2n series stay those of
+    // runs without them.
+    for (int i = 0; i < extra_nulls; ++i) data.push_back(simulate(sc, false, rng, past));
     Tally plain;
     for (const Config& cfg : configs) {
       const bool relevant = (sc.kind == Scenario::silent) ? (std::string(cfg.name) == "plain" || cfg.low_run || cfg.shift)
                                                           : !cfg.low_run;
       if (!relevant) continue;
-      if (!wanted.empty() && wanted.find("," + std::string(cfg.name) + ",") == std::string::npos) continue;
+      const bool named = !wanted.empty() && wanted.find("," + std::string(cfg.name) + ",") != std::string::npos;
+      if (!wanted.empty() && !named) continue;
+      if (cfg.threshold > 0 && !named) continue;  // only on request
       Tally t;
-      run(si, sc, cfg, family, shift_error, data, t);
+      run(si, sc, cfg, resistance, family, shift_error, data, t);
       std::printf("%-3d %-48s %-20s %-28s %-21s %-21s %6.1f\n", si, sc.name, cfg.name,
                   show(ratio(t.null_alert_weeks, t.null_weeks), "%.5f").c_str(),
                   show(ratio(t.detected, std::vector<double>(t.detected.size(), 1.0)), "%.3f").c_str(),
@@ -402,15 +479,19 @@ int main(int argc, char** argv) {
         plain = t;
         continue;
       }
-      if (!cfg.shift && !cfg.low_run && cfg.alerted_weight == 1.0 && !plain.null_week_p.empty()) {
-        const std::size_t k = alerted_null_weeks(plain, 0.001);
+      for (double level : {0.001, 0.01}) {
+        if (cfg.shift || cfg.low_run || cfg.alerted_weight != 1.0 || plain.null_week_p.empty()) break;
+        const std::size_t k = alerted_null_weeks(plain, level);
         const std::vector<double> mine = detected_at(t, k), theirs = detected_at(plain, k);
-        char line[256];
-        std::snprintf(line, sizeof line, "%-3d %-48s %-20s at <= %zu of %zu null weeks alerted: POD %s vs plain %s, dPOD %s",
-                      si, sc.name, cfg.name, k, t.null_week_p.size(),
+        const Interval boot = matched_bootstrap(t, plain, level, 1000, seed + 7);
+        char line[320];
+        std::snprintf(line, sizeof line,
+                      "%-3d %-48s %-20s %-5g at <= %zu of %zu null weeks alerted: POD %s vs plain %s, dPOD %s, "
+                      "bootstrap [%+.3f,%+.3f]",
+                      si, sc.name, cfg.name, level, k, t.null_week_p.size(),
                       show(ratio(mine, std::vector<double>(mine.size(), 1.0)), "%.3f").c_str(),
                       show(ratio(theirs, std::vector<double>(theirs.size(), 1.0)), "%.3f").c_str(),
-                      show(paired(mine, theirs), "%+.3f").c_str());
+                      show(paired(mine, theirs), "%+.3f").c_str(), boot.lo, boot.hi);
         matched_lines.push_back(line);
       }
       char line[256];
@@ -429,7 +510,7 @@ int main(int argc, char** argv) {
       std::vector<Series> nulls;
       for (int i = 0; i < arl_series; ++i) nulls.push_back(simulate(sc, false, arl_rng, past));
       Tally t;
-      run(si, sc, configs[3], family, shift_error, nulls, t, dump);
+      run(si, sc, configs[3], resistance, family, shift_error, nulls, t, dump);
       char line[512];
       const double judged = std::max(1.0, sum(t.cusum_records));
       std::snprintf(line, sizeof line,

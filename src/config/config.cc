@@ -51,12 +51,19 @@ class Reader {
 
   void read_model(const toml::table& t, std::string_view prefix, ModelSpec& m) {
     check_keys(t, prefix, {"family", "link", "trend", "covariates", "seasons", "window", "min_history", "refit_every", "refit_on_doubt",
-                           "reweight", "reweight_threshold", "alerted_weight", "guard_records"});
+                           "reweight", "reweight_threshold", "reweight_rounds", "reweight_mean_correction", "alerted_weight",
+                           "guard_records"});
     if (auto* v = get<toml::value<int64_t>>(t, "guard_records", prefix, "an integer")) {
       if (v->get() < 0 || v->get() > 1000) fail(*v, join(prefix, "guard_records"), "must be between 0 and 1000");
       else m.guard_records = static_cast<std::size_t>(v->get());
     }
     if (auto* v = get<toml::value<bool>>(t, "reweight", prefix, "true or false")) m.reweight = v->get();
+    if (auto* v = get<toml::value<bool>>(t, "reweight_mean_correction", prefix, "true or false"))
+      m.reweight_mean_correction = v->get();
+    if (auto* v = get<toml::value<int64_t>>(t, "reweight_rounds", prefix, "an integer")) {
+      if (v->get() < 1 || v->get() > 10) fail(*v, join(prefix, "reweight_rounds"), "must be between 1 and 10");
+      else m.reweight_rounds = static_cast<std::size_t>(v->get());
+    }
     if (const toml::node* n = t.get("reweight_threshold")) {
       std::optional<double> v = n->value<double>();
       if (!v || !(*v >= 1 && *v <= 10)) fail(*n, join(prefix, "reweight_threshold"), "must be a number between 1 and 10");

@@ -53,14 +53,27 @@ LowThreshold low_threshold(const Observation& obs, const Prediction& p, const Se
 
 }  // namespace
 
+// Standard errors of phi-hat within which a quasi-Poisson noise counts as
+// Poisson for the CUSUM (in_control_of).
+constexpr double kPoissonBandSe = 1;
+
 InControl in_control_of(const Prediction& prediction, double dispersion_df) {
   InControl in;
   in.mean = std::max(prediction.bounds.expected, 1e-6);
   const bounds::CountNoise& n = prediction.noise;
   if (n.family == glm::Family::negbin && std::isfinite(n.theta) && n.theta > 0) in.theta = n.theta;
   if (n.family == glm::Family::quasipoisson && std::isfinite(n.dispersion) && n.dispersion > 1) {
-    in.phi = n.dispersion;
-    if (std::isfinite(dispersion_df) && dispersion_df > 0) in.dispersion_df = dispersion_df;
+    const bool df_known = std::isfinite(dispersion_df) && dispersion_df > 0;
+    // With phi's degrees of freedom known, a phi-hat within two standard
+    // errors of 1 (sqrt(2 / df) each, chi-squared) is no evidence of
+    // overdispersion: the CUSUM then scores and calibrates as Poisson. Kept
+    // as an estimate, such a phi-hat is above 1 about half the time on
+    // Poisson counts and never below (phi <= 1 counts as Poisson), so the
+    // limit only ever widened and the run length came out long.
+    if (!df_known || n.dispersion > 1 + kPoissonBandSe * std::sqrt(2 / dispersion_df)) {
+      in.phi = n.dispersion;
+      if (df_known) in.dispersion_df = dispersion_df;
+    }
   }
   // The error of the fitted log mean (log link only: other links have no
   // multiplicative error to carry over).

@@ -134,13 +134,22 @@ class Chain {
     double weight = 1;
     std::vector<double> pmf;
   };
+  // Solver workspace reused by component_arl (a Chain is used by one thread).
+  mutable Eigen::MatrixXd workspace_;
+  mutable Eigen::PartialPivLU<Eigen::MatrixXd> lu_;
+  mutable Eigen::VectorXd ones_, arl_;
 
   double component_arl(const std::vector<double>& pmf, double h, int states) const {
     const int n = std::max(states, 10);
     // Cell j holds S near j * w; cell 0 also holds S <= w / 2 (the reflecting
     // barrier at 0); the last cell ends exactly at h (Brook and Evans 1972).
     const double w = h / (n - 0.5);
-    Eigen::MatrixXd A = Eigen::MatrixXd::Identity(n, n);  // I - R
+    // I - R, in a workspace kept across the bisection's calls: a fresh
+    // n x n matrix and LU per call (180 KiB at n = 150) made the allocator
+    // grow and trim the heap each time, and those system calls (with their
+    // TLB flushes) took more time than the solves.
+    Eigen::MatrixXd& A = workspace_;
+    A.setIdentity(n, n);
     for (int j = 0; j < n; ++j) {
       const double from = j * w;
       for (std::size_t y = 0; y < pmf.size(); ++y) {
@@ -150,9 +159,10 @@ class Chain {
         A(j, cell) -= pmf[y];
       }
     }
-    const Eigen::VectorXd ones = Eigen::VectorXd::Ones(n);
-    const Eigen::VectorXd arl = A.partialPivLu().solve(ones);
-    const double a = arl(0);
+    lu_.compute(A);
+    ones_.setOnes(n);
+    arl_ = lu_.solve(ones_);
+    const double a = arl_(0);
     // A chain that never reaches h makes I - R singular: the solve then gives
     // huge or non-finite values.
     if (!std::isfinite(a) || a < 1 || a > 1e15) return std::numeric_limits<double>::infinity();

@@ -49,6 +49,8 @@ struct ModelSpec {
   // (Farrington et al. 1996 with the threshold of Noufaily et al. 2013).
   bool reweight = true;                  // down-weight outlying records in each refit
   double reweight_threshold = 2.58;      // standardized Anscombe residual above which a record is down-weighted
+  std::size_t reweight_rounds = 1;       // reweighted refits at most, each against the previous one (1-10)
+  bool reweight_mean_correction = false; // log link: divide the resistant fit's mean by its expected shrinkage
   double alerted_weight = 1.0;           // prior weight of a record that raised an alert, in [0, 1] (1 = no change)
   std::size_t guard_records = 0;         // newest records left out of the fit that judges the next record (0 = none)
 };

@@ -15,10 +15,25 @@ double normal_reweighted_dispersion_factor(double threshold) {
   return (1 - c * density) / (1 - 2 * upper + density / c);
 }
 
-double reweighted_dispersion_factor(double threshold, double mean, double phi) {
+double normal_reweighted_mean_factor(double threshold, double mean, double phi) {
+  if (!(threshold < HUGE_VAL) || !(mean > 0) || !(phi > 0)) return 1.0;
+  const double c = std::max(threshold, 1e-6);
+  const double density = std::exp(-0.5 * c * c) / std::sqrt(2 * M_PI);
+  const double upper = 0.5 * std::erfc(c / std::sqrt(2.0));
+  // E[v Z] = -phi(c) + integral_c^inf phi(z) / z dz, the integral being
+  // E1(c^2 / 2) / (2 sqrt(2 pi)) (substitute u = z^2 / 2); E[v] as in the
+  // dispersion factor's denominator. E1(x) = -Ei(-x).
+  const double e1 = -std::expint(-0.5 * c * c);
+  const double vz = -density + e1 / (2 * std::sqrt(2 * M_PI));
+  const double ev = 1 - 2 * upper + density / c;
+  return 1 + std::sqrt(phi * mean) * vz / (mean * ev);
+}
+
+ReweightedMoments reweighted_moments(double threshold, double mean, double phi) {
   if (!(threshold < HUGE_VAL) || !(mean > 0) || !(phi > 0) || !std::isfinite(mean) || !std::isfinite(phi))
-    return 1.0;
-  if (mean > 1e4) return normal_reweighted_dispersion_factor(threshold);
+    return {1.0, 1.0};
+  if (mean > 1e4)
+    return {normal_reweighted_dispersion_factor(threshold), normal_reweighted_mean_factor(threshold, mean, phi)};
   const double sd = std::sqrt(phi * mean);
   const double mu_23 = std::cbrt(mean * mean);
   const double anscombe_scale = 1.5 / (std::pow(mean, 1.0 / 6.0) * std::sqrt(phi));
@@ -39,7 +54,7 @@ double reweighted_dispersion_factor(double threshold, double mean, double phi) {
   // of a smooth summand; the step is at most sd / 16).
   const double from = std::max(0.0, std::floor(mean - 10 * sd)), to = std::ceil(mean + 15 * sd + 5);
   const double step = std::max(1.0, std::floor((to - from) / 400));
-  double mass = 0, weight = 0, weighted_square = 0;
+  double mass = 0, weight = 0, weighted_square = 0, weighted_count = 0;
   // Count by count, P(Y = y + 1) follows from P(Y = y) by the pmf's ratio
   // (one multiplication instead of three lgamma calls per term).
   double pmf = std::exp(log_pmf(from));
@@ -54,9 +69,15 @@ double reweighted_dispersion_factor(double threshold, double mean, double phi) {
     mass += p;
     weight += p * v;
     weighted_square += p * v * r * r;
+    weighted_count += p * v * y;
   }
-  if (!(mass > 0.99) || !(weight > 0)) return normal_reweighted_dispersion_factor(threshold);
-  return (weighted_square / mass) / (weight / mass);
+  if (!(mass > 0.99) || !(weight > 0))
+    return {normal_reweighted_dispersion_factor(threshold), normal_reweighted_mean_factor(threshold, mean, phi)};
+  return {weighted_square / weight, weighted_count / (weight * mean)};
+}
+
+double reweighted_dispersion_factor(double threshold, double mean, double phi) {
+  return reweighted_moments(threshold, mean, phi).dispersion_factor;
 }
 
 }  // namespace tallyd

@@ -24,9 +24,25 @@
 //
 // (phi the density, Q the upper tail; integration by parts), used where the
 // sums would be long (means above 1e4).
+//
+// The same reweighting biases the fitted mean low (only high residuals are
+// down-weighted): for an intercept-only log-link fit the estimating equation
+// sum v_i (y_i - mu) = 0 solves to E[v Y] / E[v] = mu * m in expectation, with
+//
+//   m = E[v Y] / (mu E[v]) = 1 + sd E[v Z] / (mu E[v])   (Z the standardized count),
+//
+// so dividing the fitted mean by m (subtracting log m from the intercept)
+// makes it consistent under the model: the mean counterpart of kappa, in the
+// spirit of the Fisher-consistency correction of Cantoni and Ronchetti
+// (2001). For a normal residual E[v Z] = -phi(c) + E1(c^2/2) / (2 sqrt(2 pi)).
 #pragma once
 
 namespace tallyd {
+
+struct ReweightedMoments {
+  double dispersion_factor = 1;  // kappa
+  double mean_factor = 1;        // m
+};
 
 // The normal-residual closed form above; 1 for c = +infinity.
 double normal_reweighted_dispersion_factor(double threshold);
@@ -36,5 +52,11 @@ double normal_reweighted_dispersion_factor(double threshold);
 // mean + 40 sd (about 10 + 80 sqrt(phi * mean) terms). Returns the normal
 // form for mean > 1e4 and 1 for a non-finite threshold or invalid arguments.
 double reweighted_dispersion_factor(double threshold, double mean, double phi);
+
+// kappa and m in one pass over the count distribution (same terms, same cost).
+ReweightedMoments reweighted_moments(double threshold, double mean, double phi);
+
+// m for a normal residual of the given mean and dispersion; 1 for c = +infinity.
+double normal_reweighted_mean_factor(double threshold, double mean, double phi);
 
 }  // namespace tallyd

@@ -197,34 +197,24 @@ void SeriesModel::refit() {
   // only when there is nothing better.
   if (result.status == glm::FitStatus::ok && settings_->model.reweight) {
     // Outbreak-resistant refit: down-weight outlying records and fit once
-    // more from the first fit (Farrington et al. 1996; Noufaily et al. 2013).
-    Eigen::VectorXd resistant = resistant_weights(result);
-    if (resistant.size() > 0) {
-      glm::FitResult second = glm::fit_glm(X_, y_, offset_, resistant, options, &result.coefficients, true);
+    // more from the previous fit (Farrington et al. 1996; Noufaily et al.
+    // 2013). With reweight_rounds > 1 the weights are recomputed (from the
+    // prior weights) against the latest resistant fit and its corrected
+    // dispersion, until no record is down-weighted or the rounds run out:
+    // judged against a first fit that the outbreak itself has inflated, many
+    // outbreak records fall below the threshold (masking).
+    bool corrected = false;
+    for (std::size_t round = 0; round < settings_->model.reweight_rounds; ++round) {
+      Eigen::VectorXd resistant = resistant_weights(result);
+      if (resistant.size() == 0) break;
+      glm::FitResult next = glm::fit_glm(X_, y_, offset_, resistant, options, &result.coefficients, true);
       ++fits_done_;
-      if (second.status == glm::FitStatus::ok) result = std::move(second);
+      if (next.status != glm::FitStatus::ok) break;
+      result = std::move(next);
+      correct_resistant_fit(result);
+      corrected = true;
     }
-    // The weighted Pearson statistic of the resistant fit lacks the largest
-    // residuals, so its quasi-Poisson phi runs low even with no outbreak;
-    // divide by the expected shrinkage (series/resistant_dispersion.h). The
-    // factor is an average over windows with and without a down-weighted
-    // record, so it applies to both (with none, the first fit is the
-    // resistant fit). Taking the first fit's phi instead would let past
-    // outbreaks widen every later bound, which the reweighting is there to
-    // prevent.
-    if (settings_->model.family == glm::Family::quasipoisson && result.dispersion > 0) {
-      // At the window's average fitted mean, and at the corrected phi (one
-      // step: the factor moves slowly with phi).
-      const Eigen::VectorXd eta = X_ * result.coefficients + offset_;
-      double mean_sum = 0;
-      for (Eigen::Index i = 0; i < eta.size(); ++i) mean_sum += glm::link_inv(settings_->model.link, eta(i));
-      const double mean = mean_sum / static_cast<double>(eta.size());
-      const double threshold = settings_->model.reweight_threshold;
-      const double rough = result.dispersion / normal_reweighted_dispersion_factor(threshold);
-      const double factor = reweighted_dispersion_factor(threshold, mean, rough);
-      result.covariance /= factor;
-      result.dispersion /= factor;
-    }
+    if (!corrected) correct_resistant_fit(result);
   }
   if (result.status == glm::FitStatus::ok ||
       (result.status == glm::FitStatus::not_converged && !has_fit_)) {
@@ -232,6 +222,40 @@ void SeriesModel::refit() {
     has_fit_ = true;
   }
   release_workspace();
+}
+
+void SeriesModel::correct_resistant_fit(glm::FitResult& result) const {
+  // The weighted Pearson statistic of the resistant fit lacks the largest
+  // residuals, so its quasi-Poisson phi runs low even with no outbreak;
+  // divide by the expected shrinkage (series/resistant_dispersion.h). The
+  // factor is an average over windows with and without a down-weighted
+  // record, so it applies to both (with none, the first fit is the
+  // resistant fit). Taking the first fit's phi instead would let past
+  // outbreaks widen every later bound, which the reweighting is there to
+  // prevent. With model.reweight_mean_correction (log link) the fitted mean
+  // is divided by its expected shrinkage likewise.
+  const ModelSpec& spec = settings_->model;
+  const bool quasi = spec.family == glm::Family::quasipoisson && result.dispersion > 0;
+  const bool mean_fix = spec.reweight_mean_correction && spec.link == glm::Link::log;
+  if (!quasi && !mean_fix) return;
+  // At the window's average fitted mean, and at the corrected phi (one
+  // step: the factor moves slowly with phi).
+  const Eigen::VectorXd eta = X_ * result.coefficients + offset_;
+  double mean_sum = 0;
+  for (Eigen::Index i = 0; i < eta.size(); ++i) mean_sum += glm::link_inv(spec.link, eta(i));
+  const double mean = mean_sum / static_cast<double>(eta.size());
+  const double threshold = spec.reweight_threshold;
+  double index = 1;  // the noise's dispersion index at the mean
+  if (quasi) index = result.dispersion / normal_reweighted_dispersion_factor(threshold);
+  else if (spec.family == glm::Family::negbin && std::isfinite(result.theta) && result.theta > 0)
+    index = 1 + mean / result.theta;
+  const ReweightedMoments moments = reweighted_moments(threshold, mean, index);
+  if (quasi) {
+    result.covariance /= moments.dispersion_factor;
+    result.dispersion /= moments.dispersion_factor;
+  }
+  if (mean_fix && moments.mean_factor > 0 && result.coefficients.size() > 0)
+    result.coefficients(0) -= std::log(moments.mean_factor);  // column 0 is the intercept (series/design.h)
 }
 
 void SeriesModel::release_workspace() {

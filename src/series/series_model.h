@@ -109,6 +109,12 @@ class SeriesModel {
   // (X_, y_, offset_, weights_): records with standardized Anscombe residual
   // above model.reweight_threshold get weight / residual^2, all rescaled to
   // the same total. Empty when no record is down-weighted.
+  // Divides a resistant quasi-Poisson fit's phi (and covariance) by the
+  // expected shrinkage of the weighted Pearson statistic, and with
+  // model.reweight_mean_correction (log link) its mean by the expected
+  // shrinkage of the weighted mean (series/resistant_dispersion.h). Reads the
+  // design of the current refit.
+  void correct_resistant_fit(glm::FitResult& result) const;
   Eigen::VectorXd resistant_weights(const glm::FitResult& fit) const;
   double row_for(TimePoint time, double exposure, const double* covariates,
                  RowRef row) const;

@@ -108,6 +108,8 @@ TEST_CASE("detector and resistant-training keys", "[config]") {
 [model]
 reweight = false
 reweight_threshold = 3
+reweight_rounds = 4
+reweight_mean_correction = true
 alerted_weight = 0.25
 guard_records = 3
 [detect]
@@ -127,6 +129,8 @@ detect.shift = false
   const SeriesSettings& d = r.value().settings.defaults;
   CHECK_FALSE(d.model.reweight);
   CHECK(d.model.reweight_threshold == 3);
+  CHECK(d.model.reweight_rounds == 4);
+  CHECK(d.model.reweight_mean_correction);
   CHECK(d.model.alerted_weight == 0.25);
   CHECK(d.model.guard_records == 3);
   CHECK(d.detect.shift);
@@ -143,7 +147,11 @@ detect.shift = false
   auto empty = parse_config("", "empty.toml");
   REQUIRE(empty.ok());
   CHECK(empty.value().settings.defaults.model.reweight);
+  CHECK(empty.value().settings.defaults.model.reweight_rounds == 1);
   CHECK_FALSE(empty.value().settings.defaults.detect.shift);
+  auto zero = parse_config("[model]\nreweight_rounds = 0\n", "monitor.toml");
+  REQUIRE_FALSE(zero.ok());
+  CHECK_THAT(zero.error().message, Catch::Contains("model.reweight_rounds") && Catch::Contains("between 1 and 10"));
 }
 
 TEST_CASE("a missing config file is an error naming it", "[config]") {

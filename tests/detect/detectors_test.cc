@@ -49,6 +49,32 @@ SettingsTable weekly_settings(int harmonics, bool trend = false) {
 
 }  // namespace
 
+TEST_CASE("CUSUM law: a quasi-Poisson phi within one standard error of 1 counts as Poisson", "[detect]") {
+  // phi-hat = Pearson chi2 / df has standard error sqrt(2 / df) around 1 on
+  // Poisson counts (chi-squared with df degrees of freedom: common practice).
+  Prediction p;
+  p.predictor.eta_mean = std::log(5.0);
+  p.predictor.eta_variance = 0.01;
+  p.noise.family = glm::Family::quasipoisson;
+  p.bounds.expected = 5;
+  const double df = 150, se = std::sqrt(2 / df);  // 0.115
+  p.noise.dispersion = 1 + 0.9 * se;
+  InControl near = in_control_of(p, df);
+  CHECK(near.phi == 1);
+  CHECK(near.dispersion_df == 0);
+  Prediction poisson = p;
+  poisson.noise.family = glm::Family::poisson;
+  CHECK(scored_law(near).size == scored_law(in_control_of(poisson, df)).size);
+  p.noise.dispersion = 1 + 1.1 * se;
+  InControl over = in_control_of(p, df);
+  CHECK(over.phi == p.noise.dispersion);
+  CHECK(over.dispersion_df == df);
+  CHECK(scored_law(over).size < scored_law(near).size);
+  // Without its degrees of freedom phi is taken as known, whatever its size.
+  p.noise.dispersion = 1 + 0.5 * se;
+  CHECK(in_control_of(p).phi == p.noise.dispersion);
+}
+
 TEST_CASE("low-count run: in-control alert rate per record at or below its alpha", "[detect]") {
   // Under the model, P(the current run reaches joint probability <= alpha at a
   // given record) <= alpha, since that needs every record of the trailing

@@ -55,3 +55,45 @@ TEST_CASE("reweighted dispersion factor for counts approaches the normal form as
   CHECK(reweighted_dispersion_factor(std::numeric_limits<double>::infinity(), 5, 2) == 1.0);
   CHECK(reweighted_dispersion_factor(2.58, 0, 2) == 1.0);
 }
+
+namespace {
+
+// m for a normal residual straight from its definition, E[v Y] / (mu E[v])
+// with Y = mu + sd Z, by Boost.Math Gauss-Kronrod quadrature.
+double mean_factor_by_quadrature(double c, double mean, double phi) {
+  const boost::math::normal_distribution<double> z;
+  auto density = [&](double r) { return boost::math::pdf(z, r); };
+  using Integrator = boost::math::quadrature::gauss_kronrod<double, 61>;
+  const double inf = std::numeric_limits<double>::infinity();
+  const double mass_below = boost::math::cdf(z, c);
+  const double z_below = Integrator::integrate([&](double r) { return r * density(r); }, -inf, c, 15, 1e-12);
+  const double z_above = Integrator::integrate([&](double r) { return density(r) / r; }, c, inf, 15, 1e-12);
+  const double weight_above = Integrator::integrate([&](double r) { return density(r) / (r * r); }, c, inf, 15, 1e-12);
+  const double sd = std::sqrt(phi * mean);
+  const double ev = mass_below + weight_above;
+  return (mean * ev + sd * (z_below + z_above)) / (mean * ev);
+}
+
+}  // namespace
+
+TEST_CASE("reweighted mean factor: closed form equals the integrals, counts approach it", "[series]") {
+  for (double c : {1.0, 1.5, 2.58, 4.0}) {
+    INFO("threshold " << c);
+    CHECK(normal_reweighted_mean_factor(c, 50, 2) == Approx(mean_factor_by_quadrature(c, 50, 2)).epsilon(1e-9));
+  }
+  // Only high residuals lose weight: the weighted mean is below the mean,
+  // more so at a lower threshold.
+  CHECK(normal_reweighted_mean_factor(1.0, 50, 2) < normal_reweighted_mean_factor(2.58, 50, 2));
+  CHECK(normal_reweighted_mean_factor(2.58, 50, 2) < 1.0);
+  CHECK(normal_reweighted_mean_factor(std::numeric_limits<double>::infinity(), 50, 2) == 1.0);
+  for (double mean : {1.0, 5.0, 100.0}) {
+    const double m = reweighted_moments(1.0, mean, 2.0).mean_factor;
+    INFO("mean " << mean << " m " << m);
+    CHECK(m < 1.0);
+    CHECK(m > 0.5);
+  }
+  CHECK(reweighted_moments(1.0, 9000, 2.0).mean_factor ==
+        Approx(normal_reweighted_mean_factor(1.0, 9000, 2.0)).epsilon(2e-3));
+  // The dispersion factor from the same pass is the one reported alone.
+  CHECK(reweighted_moments(2.58, 5, 2).dispersion_factor == reweighted_dispersion_factor(2.58, 5, 2));
+}

@@ -79,12 +79,13 @@ namespace {
 // Quasi-Poisson dispersion of one window of 156 weekly negative binomial
 // counts, mean 10, Var = 2 * mean (theta = 10); `outbreaks` spells of 4
 // weeks get 5 standard deviations extra (at weeks 20, 70, 120).
-double window_dispersion(bool reweight, std::uint64_t seed, int outbreaks) {
+double window_dispersion(bool reweight, std::uint64_t seed, int outbreaks, std::size_t rounds = 1) {
   static SeriesSettings settings;  // must outlive the model; rewritten per call
   settings.model.family = glm::Family::quasipoisson;
   settings.model.window = Window{std::nullopt, 156};
   settings.model.min_history = 156;  // one fit, after the last record
   settings.model.reweight = reweight;
+  settings.model.reweight_rounds = rounds;
   SeriesModel model("trap-d", settings);
   bounds::Rng rng(seed);
   for (int week = 0; week < 156; ++week) {
@@ -134,4 +135,64 @@ TEST_CASE("resistant quasi-Poisson dispersion is consistent without outbreaks an
   INFO("with outbreaks: plain " << plain_hit << ", resistant " << resistant_hit);
   CHECK(plain_hit > 4);
   CHECK(resistant_hit < plain_hit - 0.4);
+}
+
+TEST_CASE("more reweighting rounds unmask past outbreaks and stay consistent without them", "[series]") {
+  // Reweighting again against the resistant fit (its lower phi) reaches the
+  // outbreak weeks that the inflated first fit masked; on outbreak-free
+  // windows the corrected phi must stay near the true 2 (as for one round).
+  double one = 0, three = 0, clean = 0;
+  for (int i = 0; i < 60; ++i) {
+    one += window_dispersion(true, 900 + i, 3, 1) / 60;
+    three += window_dispersion(true, 900 + i, 3, 3) / 60;
+    clean += window_dispersion(true, 500 + i, 0, 3) / 60;
+  }
+  INFO("with outbreaks: one round " << one << ", three rounds " << three << "; without: " << clean);
+  CHECK(three < one - 0.3);
+  CHECK(std::abs(clean - 2) < 0.12);
+}
+
+namespace {
+
+// Fitted mean of one outbreak-free window of 156 weekly negative binomial
+// counts, mean 10, Var = 2 * mean, resistant at `threshold`.
+double window_mean(std::uint64_t seed, double threshold, bool mean_correction) {
+  static SeriesSettings settings;  // must outlive the model; rewritten per call
+  settings.model.family = glm::Family::quasipoisson;
+  settings.model.window = Window{std::nullopt, 156};
+  settings.model.min_history = 156;
+  settings.model.reweight = true;
+  settings.model.reweight_threshold = threshold;
+  settings.model.reweight_mean_correction = mean_correction;
+  SeriesModel model("trap-m", settings);
+  bounds::Rng rng(seed);
+  for (int week = 0; week < 156; ++week) {
+    Observation o;
+    o.series = "trap-m";
+    o.time = TimePoint{Seconds{1600000000 + static_cast<std::int64_t>(week) * 7 * 86400}};
+    o.count = rng.negbin(10, 10);
+    model.learn(o);
+  }
+  REQUIRE(model.has_fit());
+  return std::exp(model.fit().coefficients(0));
+}
+
+}  // namespace
+
+TEST_CASE("mean correction: a resistant fit's mean is consistent on outbreak-free windows", "[series]") {
+  // Threshold 1 (Farrington et al. 1996) down-weights about a fifth of the
+  // records, all on the high side: uncorrected, the mean runs some 5% low.
+  constexpr int kWindows = 200;
+  double raw = 0, corrected = 0, squares = 0;
+  for (int i = 0; i < kWindows; ++i) {
+    raw += window_mean(300 + i, 1.0, false) / kWindows;
+    const double c = window_mean(300 + i, 1.0, true);
+    corrected += c / kWindows;
+    squares += c * c / kWindows;
+  }
+  // The sd of one window's mean is about sqrt(20 / 156) = 0.36, so the SE of the average is ~0.025.
+  const double se = std::sqrt((squares - corrected * corrected) / (kWindows - 1));
+  INFO("true 10; uncorrected " << raw << ", corrected " << corrected << " +- " << se);
+  CHECK(raw < 10 - 4 * se);
+  CHECK(std::abs(corrected - 10) < 3 * se + 0.02);
 }
