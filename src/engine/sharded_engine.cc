@@ -62,8 +62,9 @@ std::vector<IngestResult> ShardedEngine::ingest_batch(const std::vector<Observat
 
   // Each worker writes only its own records' slots. A slot is an
   // IngestResult of several cache lines (696 bytes with g++ 12), written
-  // once per record after tens of microseconds of judging, so two workers share a line at
-  // most at a slot's edges: not worth a buffer per worker and a serial copy.
+  // once per record after tens of microseconds of judging, so two workers
+  // share a line at most at a slot's edges: not worth a buffer per worker
+  // and a serial copy.
   crew_.run([&](std::size_t worker) {
     Engine& engine = *shards_[worker];
     for (const std::size_t i : picks_[worker]) results[i] = engine.ingest(batch[i]);
