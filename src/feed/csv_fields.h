@@ -33,6 +33,11 @@ class CsvFields {
   std::string_view operator[](std::size_t i) const { return fields_[i]; }
 
  private:
+  // split() for a line where no field opens with '"' (after blanks). False,
+  // with fields_ partly filled, at the first field that does: the line
+  // needs the general reading.
+  bool split_plain(std::string_view line);
+
   std::vector<std::string_view> fields_;
   std::string unescaped_;  // quoted fields that contained "" escapes
 };

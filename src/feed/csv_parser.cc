@@ -1,5 +1,6 @@
 #include "feed/csv_parser.h"
 
+#include <cstring>
 #include <optional>
 
 #include "feed/field_check.h"
@@ -24,6 +25,27 @@ Rejection reject(RejectReason reason, const SourcePos& where, std::string detail
 Rejection reject(FieldFault fault, const SourcePos& where) {
   return Rejection{fault.reason, where, std::move(fault.detail)};
 }
+
+// to = from, without std::string::assign's general replace: the ids and the
+// source name of consecutive records usually have the same length, and then
+// this is one memcpy into the bytes `to` already owns.
+void overwrite(std::string& to, std::string_view from) {
+  if (to.size() != from.size()) {
+    to.assign(from);
+  } else if (!from.empty()) {
+    std::memcpy(to.data(), from.data(), from.size());
+  }
+}
+
+// Observation's members, for the guard in CsvParser::parse_into.
+struct ObservationFields {
+  TimePoint time;
+  std::string series;
+  std::int64_t count;
+  double exposure;
+  std::vector<Covariate> covariates;
+  SourcePos where;
+};
 
 }  // namespace
 
@@ -79,42 +101,72 @@ std::vector<std::string> CsvParser::covariate_names() const {
 }
 
 ParseOutcome CsvParser::parse(std::string_view line, const SourcePos& where) {
-  if (is_blank_or_comment(line)) return ParseOutcome::skip();
-  if (Status s = fields_.split(line); !s)
-    return ParseOutcome::of(reject(RejectReason::bad_format, where, "CSV " + s.error().message));
-  if (fields_.size() != column_count_)
-    return ParseOutcome::of(reject(RejectReason::bad_format, where,
-                                   "line has " + std::to_string(fields_.size()) + " fields but the header has " +
-                                       std::to_string(column_count_) + ": " + quote_value(line)));
+  FeedItem item;
+  switch (parse_into(line, where, item)) {
+    case LineKind::record: return ParseOutcome::of(std::move(item.record()));
+    case LineKind::rejected: return ParseOutcome::of(std::move(item.rejection()));
+    case LineKind::skip: break;
+  }
+  return ParseOutcome::skip();
+}
 
-  Observation obs;
+LineKind CsvParser::parse_into(std::string_view line, const SourcePos& where, FeedItem& out) {
+  // A line that opens with anything but a blank or '#' needs no further look.
+  const char first = line.empty() ? ' ' : line.front();
+  if ((first == ' ' || first == '\t' || first == '#') && is_blank_or_comment(line)) return LineKind::skip;
+  auto refuse = [&](Rejection rejection) {
+    out.value = std::move(rejection);
+    return LineKind::rejected;
+  };
+  if (Status s = fields_.split(line); !s)
+    return refuse(reject(RejectReason::bad_format, where, "CSV " + s.error().message));
+  if (fields_.size() != column_count_)
+    return refuse(reject(RejectReason::bad_format, where,
+                         "line has " + std::to_string(fields_.size()) + " fields but the header has " +
+                             std::to_string(column_count_) + ": " + quote_value(line)));
+
+  // The record is written over the one `out` already holds, if any, so its
+  // strings and covariate list keep their capacity: a FeedItem reused from
+  // line to line costs no allocation per line. Every field is assigned below;
+  // this guard fails to compile when Observation gains one that is not.
+  static_assert(sizeof(Observation) == sizeof(ObservationFields), "CsvParser::parse_into must set every field");
+  if (!out.is_record()) out.value.emplace<Observation>();
+  Observation& obs = out.record();
+
   if (const std::string_view time_text = fields_[time_]; time_text == last_time_text_ && !time_text.empty()) {
     obs.time = last_time_;
   } else {
-    if (FieldCheck f = read_time(time_text, obs.time)) return ParseOutcome::of(reject(std::move(*f), where));
+    if (FieldCheck f = read_time(time_text, obs.time)) return refuse(reject(std::move(*f), where));
     last_time_text_.assign(time_text);
     last_time_ = obs.time;
   }
-  if (FieldCheck f = check_series(fields_[series_])) return ParseOutcome::of(reject(std::move(*f), where));
-  if (FieldCheck f = read_count(fields_[count_], obs.count)) return ParseOutcome::of(reject(std::move(*f), where));
+  const std::string_view series = fields_[series_];
+  if (FieldCheck f = check_series(series)) return refuse(reject(std::move(*f), where));
+  if (FieldCheck f = read_count(fields_[count_], obs.count)) return refuse(reject(std::move(*f), where));
+  obs.exposure = 1.0;
   if (exposure_ != kNoColumn)
-    if (FieldCheck f = read_exposure(fields_[exposure_], obs.exposure))
-      return ParseOutcome::of(reject(std::move(*f), where));
+    if (FieldCheck f = read_exposure(fields_[exposure_], obs.exposure)) return refuse(reject(std::move(*f), where));
 
-  std::size_t present = 0;
-  for (const CovariateColumn& column : covariates_) present += fields_[column.index].empty() ? 0 : 1;
-  if (present > 0) obs.covariates.reserve(present);  // one allocation, and none without covariates
+  std::size_t carried = 0;
   for (const CovariateColumn& column : covariates_) {
     const std::string_view cell = fields_[column.index];
     if (cell.empty()) continue;  // this record does not carry the covariate
     double value = 0;
-    if (FieldCheck f = read_covariate(column.name, cell, value))
-      return ParseOutcome::of(reject(std::move(*f), where));
-    obs.covariates.push_back(Covariate{column.name, value});
+    if (FieldCheck f = read_covariate(column.name, cell, value)) return refuse(reject(std::move(*f), where));
+    if (carried < obs.covariates.size()) {
+      Covariate& c = obs.covariates[carried];
+      overwrite(c.name, column.name);
+      c.value = value;
+    } else {
+      obs.covariates.push_back(Covariate{column.name, value});
+    }
+    ++carried;
   }
-  obs.series.assign(fields_[series_]);
-  obs.where = where;
-  return ParseOutcome::of(std::move(obs));
+  obs.covariates.resize(carried);
+  overwrite(obs.series, series);
+  overwrite(obs.where.source, where.source);
+  obs.where.line = where.line;
+  return LineKind::record;
 }
 
 }  // namespace tallyd

@@ -23,6 +23,7 @@
 #include "core/result.h"
 #include "core/time.h"
 #include "feed/csv_fields.h"
+#include "feed/feed_item.h"
 #include "feed/parse_outcome.h"
 
 namespace tallyd {
@@ -40,6 +41,14 @@ class CsvParser {
   // count, exposure, covariates), or skip. Never throws on data.
   // Not thread-safe: reuses internal buffers between calls.
   ParseOutcome parse(std::string_view line, const SourcePos& where);
+
+  // The same verdict as parse(), written into `out`: a record or a rejection
+  // replaces what `out` held; on skip `out` is left alone. When `out` already
+  // holds a record, that record's fields are overwritten in place, so a
+  // FeedItem reused from line to line keeps its strings' capacity and a line
+  // costs no allocation once they have grown to the longest series id,
+  // source name and covariate names seen.
+  LineKind parse_into(std::string_view line, const SourcePos& where, FeedItem& out);
 
   std::size_t column_count() const { return column_count_; }
   // Names of the covariate columns, in header order.

@@ -104,13 +104,7 @@ bool FeedFile::emit(const Split& split, FeedItem& out) {
                               " bytes and was skipped; it starts " + quote_value(text)};
     return true;
   }
-  ParseOutcome outcome = parser_->parse(text, where_);
-  switch (outcome.kind()) {
-    case LineKind::record: out.value = std::move(outcome.record()); return true;
-    case LineKind::rejected: out.value = std::move(outcome.rejection()); return true;
-    case LineKind::skip: return false;
-  }
-  return false;
+  return parser_->parse_into(text, where_, out) != LineKind::skip;
 }
 
 bool FeedFile::next(FeedItem& out) {
@@ -121,7 +115,11 @@ bool FeedFile::next(FeedItem& out) {
     if (emit(Split{held.kind, held.text, held.number}, out)) return true;
   }
   while (true) {
-    const Split s = pull();
+    // The usual case, a line already buffered, straight from the splitter:
+    // through pull() the Split was copied back through memory once per line.
+    // (Asking the splitter again after need_more changes nothing.)
+    Split s = splitter_.next();
+    if (s.kind == SplitKind::need_more) s = pull();
     if (s.kind == SplitKind::need_more) {
       done_ = true;
       if (!read_failure_) return false;

@@ -1,6 +1,7 @@
 #include "feed/feed_merge.h"
 
 #include <algorithm>
+#include <utility>
 
 namespace tallyd {
 namespace {
@@ -54,7 +55,10 @@ bool FeedSet::next(FeedItem& out) {
       out.value = std::move(scratch_.rejection());
       return true;
     }
-    heads_[i] = std::move(scratch_.record());
+    // Swapped rather than moved, here and below: the strings and covariate
+    // lists go round between scratch_, heads_ and the caller's item, so
+    // parsing the next record into scratch_ reuses their capacity.
+    std::swap(heads_[i], scratch_.record());
     heap_.push_back(HeapEntry{heads_[i].time, i});
     std::push_heap(heap_.begin(), heap_.end(), Later{});
     ++refill_next_;
@@ -66,7 +70,11 @@ bool FeedSet::next(FeedItem& out) {
   std::pop_heap(heap_.begin(), heap_.end(), Later{});
   const std::size_t i = heap_.back().feed;
   heap_.pop_back();
-  out.value = std::move(heads_[i]);
+  if (out.is_record()) {
+    std::swap(out.record(), heads_[i]);
+  } else {
+    out.value = std::move(heads_[i]);
+  }
   to_refill_.push_back(i);
   return true;
 }

@@ -6,6 +6,7 @@
 #include <cmath>
 #include <cstdio>
 
+#include "feed/utc_stamp.h"
 #include "feed/utf8.h"
 
 namespace tallyd {
@@ -18,9 +19,55 @@ constexpr double kMaxExactWhole = 9007199254740992.0;
 
 enum class Number : std::uint8_t { ok, not_a_number, not_finite };
 
+// Plain decimals ("3", "2.5", "0.125") with at most this many digits: their
+// digits as an integer stay below 2^53 and their scale is at most 10^15, so
+// both are exact doubles and one division rounds the quotient correctly
+// (Clinger 1990, "How to read floating point numbers accurately": the fast
+// path for small mantissas and exponents; fast_float takes the same path).
+constexpr std::size_t kMaxPlainDigits = 15;
+constexpr double kPowersOfTen[kMaxPlainDigits + 1] = {1e0, 1e1, 1e2,  1e3,  1e4,  1e5,  1e6,  1e7,
+                                                      1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15};
+constexpr std::uint64_t kPowersOfTenWhole[kMaxPlainDigits + 1] = {
+    1, 10, 100, 1000, 10000, 100000, 1000000, 10000000, 100000000, 1000000000, 10000000000, 100000000000,
+    1000000000000, 10000000000000, 100000000000000, 1000000000000000};
+
+// `text` as digits with at most one '.' between digits, and at most
+// kMaxPlainDigits digits: stores its value, correctly rounded, as fast_float
+// would, and returns true. False for anything else (signs, exponents, a
+// leading or trailing '.', longer numbers): the caller takes the general path.
+bool parse_plain_decimal(std::string_view text, double& value) {
+  const std::size_t size = text.size();
+  if (size == 0 || size > kMaxPlainDigits + 1) return false;
+  std::uint64_t digits = 0;
+  std::size_t i = 0;
+  while (i < size && text[i] >= '0' && text[i] <= '9')
+    digits = digits * 10 + static_cast<std::uint64_t>(text[i++] - '0');
+  if (i == size) {
+    if (size > kMaxPlainDigits) return false;
+    value = static_cast<double>(digits);  // exact: below 2^53
+    return true;
+  }
+  if (i == 0 || text[i] != '.') return false;
+  const std::uint64_t whole = digits;
+  const std::size_t point = i++;
+  while (i < size && text[i] >= '0' && text[i] <= '9')
+    digits = digits * 10 + static_cast<std::uint64_t>(text[i++] - '0');
+  const std::size_t fraction_digits = i - point - 1;
+  if (fraction_digits == 0 || i < size || size - 1 > kMaxPlainDigits) return false;
+  // A whole value written with a zero fraction ("2.0", common for efforts)
+  // is its whole part exactly; the division is the slow step otherwise.
+  if (digits == whole * kPowersOfTenWhole[fraction_digits]) {
+    value = static_cast<double>(whole);
+  } else {
+    value = static_cast<double>(digits) / kPowersOfTen[fraction_digits];
+  }
+  return true;
+}
+
 // The whole of `text` as a double (no blanks, no leading '+'). "nan", "inf"
 // and values beyond the range of a double ("1e999") are not_finite.
 Number parse_real(std::string_view text, double& value) {
+  if (parse_plain_decimal(text, value)) return Number::ok;
   if (text.empty()) return Number::not_a_number;
   const char* end = text.data() + text.size();
   auto [ptr, ec] = fast_float::from_chars(text.data(), end, value);
@@ -33,9 +80,22 @@ bool is_word(std::string_view text) { return text.find_first_of("nNiI") != std::
 
 enum class Whole : std::uint8_t { ok, not_a_number, not_whole, too_large };
 
+// Up to 18 decimal digits and nothing else always fit an int64.
+constexpr std::size_t kMaxPlainWholeDigits = 18;
+
 // A whole number in integer, decimal or exponent form, as int64.
 Whole parse_whole(std::string_view text, std::int64_t& out) {
   if (text.empty()) return Whole::not_a_number;
+  if (text.size() <= kMaxPlainWholeDigits) {
+    // The usual count, "17": read here what std::from_chars would read.
+    std::int64_t n = 0;
+    std::size_t i = 0;
+    while (i < text.size() && text[i] >= '0' && text[i] <= '9') n = n * 10 + (text[i++] - '0');
+    if (i == text.size()) {
+      out = n;
+      return Whole::ok;
+    }
+  }
   const char* end = text.data() + text.size();
   auto [ptr, ec] = std::from_chars(text.data(), end, out);
   if (ptr == end) return ec == std::errc() ? Whole::ok : Whole::too_large;
@@ -102,6 +162,13 @@ bool is_blank_or_comment(std::string_view line) {
 }
 
 FieldCheck check_series(std::string_view text) {
+  // The usual id is printable ASCII and does not start with a space: then it
+  // is good. Anything else (tabs, bytes >= 0x7F, controls, a leading space
+  // that might begin an all-blank id) takes the full checks below.
+  std::size_t i = 0;
+  while (i < text.size() && static_cast<unsigned char>(text[i] - 0x20) < 0x5F) ++i;
+  if (i == text.size() && i > 0 && text[0] != ' ') return std::nullopt;
+
   if (trim_blanks(text).empty()) return fault(RejectReason::bad_series, "series id is empty");
   if (const std::size_t bad = utf8_error_offset(text); bad != std::string_view::npos)
     return fault(RejectReason::bad_format, "series id " + quote_value(text) + " is not valid UTF-8 (byte " +
@@ -115,6 +182,7 @@ FieldCheck check_series(std::string_view text) {
 }
 
 FieldCheck read_time(std::string_view text, TimePoint& time) {
+  if (read_utc_stamp(text, time)) return std::nullopt;  // the usual layout; the rest below
   Result<TimePoint> parsed = parse_time(text);
   if (!parsed) return fault(RejectReason::bad_time, parsed.error().message);
   time = *parsed;

@@ -22,7 +22,7 @@ void LineSplitter::push(std::string_view bytes) {
   buffer_.append(bytes);
 }
 
-Split LineSplitter::next() {
+Split LineSplitter::next_any() {
   if (dropping_) return {};
   const std::size_t nl = buffer_.find('\n', scanned_);
   if (nl == std::string::npos) {
@@ -51,7 +51,7 @@ Split LineSplitter::next() {
 }
 
 Split LineSplitter::finish() {
-  Split s = next();
+  Split s = next_any();
   if (s.kind != SplitKind::need_more) return s;
   if (dropping_) {
     // The last line was too long and already reported; it simply ends here.

@@ -22,6 +22,7 @@
 
 #include <cstddef>
 #include <cstdint>
+#include <cstring>
 #include <string>
 #include <string_view>
 
@@ -52,6 +53,9 @@ class LineSplitter {
   void push(std::string_view bytes);
 
   // The next complete line, a too_long report, or need_more.
+  // (Inline, below: the usual case, a whole line within the limit, is then
+  // built where the caller uses it instead of being copied back through
+  // memory once per line.)
   Split next();
 
   // End of input: like next(), but the bytes after the last '\n' count as a
@@ -66,6 +70,9 @@ class LineSplitter {
   std::size_t buffered_bytes() const { return buffer_.size() - start_; }
 
  private:
+  // next() for every case (the inline part handles only the usual one).
+  Split next_any();
+
   std::size_t max_line_bytes_;
   std::string buffer_;          // unconsumed bytes are [start_, size())
   std::size_t start_ = 0;       // first byte of the next line
@@ -73,5 +80,24 @@ class LineSplitter {
   std::uint64_t line_number_ = 1;  // number of the line that starts at start_
   bool dropping_ = false;       // inside a line already reported too_long
 };
+
+inline Split LineSplitter::next() {
+  if (!dropping_) {
+    const char* const base = buffer_.data();
+    const void* nl = std::memchr(base + scanned_, '\n', buffer_.size() - scanned_);
+    if (nl != nullptr) {
+      const std::size_t end = static_cast<std::size_t>(static_cast<const char*>(nl) - base);
+      std::size_t length = end - start_;
+      if (length > 0 && base[end - 1] == '\r') --length;
+      if (length <= max_line_bytes_) {
+        const Split s{SplitKind::line, std::string_view(base + start_, length), line_number_++};
+        start_ = end + 1;
+        scanned_ = start_;
+        return s;
+      }
+    }
+  }
+  return next_any();
+}
 
 }  // namespace tallyd

@@ -44,4 +44,15 @@ ParseOutcome RecordParser::parse(std::string_view line, const SourcePos& where) 
   return std::visit([&](auto& parser) { return parser.parse(line, where); }, impl_);
 }
 
+LineKind RecordParser::parse_into(std::string_view line, const SourcePos& where, FeedItem& out) {
+  if (CsvParser* csv = std::get_if<CsvParser>(&impl_)) return csv->parse_into(line, where, out);
+  ParseOutcome outcome = std::get<JsonlParser>(impl_).parse(line, where);
+  switch (outcome.kind()) {
+    case LineKind::record: out.value = std::move(outcome.record()); break;
+    case LineKind::rejected: out.value = std::move(outcome.rejection()); break;
+    case LineKind::skip: break;
+  }
+  return outcome.kind();
+}
+
 }  // namespace tallyd

@@ -14,6 +14,7 @@
 #include "core/observation.h"
 #include "core/result.h"
 #include "feed/csv_parser.h"
+#include "feed/feed_item.h"
 #include "feed/jsonl_parser.h"
 #include "feed/parse_outcome.h"
 
@@ -48,6 +49,10 @@ class RecordParser {
   // One line without its line end; see CsvParser::parse and JsonlParser::parse.
   // Not thread-safe: reuses internal buffers between calls.
   ParseOutcome parse(std::string_view line, const SourcePos& where);
+
+  // The same verdict written into `out`, as CsvParser::parse_into (for JSON
+  // Lines the record is moved in whole).
+  LineKind parse_into(std::string_view line, const SourcePos& where, FeedItem& out);
 
  private:
   explicit RecordParser(std::variant<CsvParser, JsonlParser> impl) : impl_(std::move(impl)) {}

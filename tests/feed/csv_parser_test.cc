@@ -136,5 +136,69 @@ TEST_CASE("CSV line refusals say what and where", "[feed][csv]") {
   CHECK(refusal("1748757600,,-3,-1,warm") == "f.csv:9: bad_series: series id is empty");
 }
 
+// Everything a verdict carries, as text, for comparing two verdicts.
+std::string verdict(LineKind kind, const FeedItem& item) {
+  if (kind == LineKind::skip) return "skip";
+  if (!item.is_record()) return "rejected " + item.rejection().describe();
+  const Observation& r = item.record();
+  std::string s = "record " + std::to_string(r.time.time_since_epoch().count()) + " <" + r.series + "> " +
+                  std::to_string(r.count) + " " + std::to_string(r.exposure) + " @" + r.where.source + ":" +
+                  std::to_string(r.where.line);
+  for (const Covariate& c : r.covariates) s += " " + c.name + "=" + std::to_string(c.value);
+  return s;
+}
+
+TEST_CASE("CSV records written over a reused FeedItem equal those of a fresh parse", "[feed][csv]") {
+  // parse_into overwrites the record the item already holds (keeping its
+  // strings' capacity); nothing of an earlier line may leak into a later
+  // one: fewer covariates, shorter ids and names, other sources, refusals
+  // and skips in between. Each verdict is compared with parse() by a parser
+  // fresh from the header (no state from earlier lines at all).
+  const std::string head = "time,series,count,exposure,temp_c,relative_humidity_percent";
+  struct Line {
+    const char* text;
+    const char* source;
+  };
+  const std::vector<Line> lines = {
+      {"2025-06-01T06:00:00Z,a-rather-long-series-identifier,3,2.5,14.5,80", "a/long/path/to/the/traps-north.csv"},
+      {"2025-06-01T06:00:00Z,b,4,1.0,,", "n.csv"},                                     // no covariates
+      {"2025-06-01T06:00:00Z,b,4,,14.5,80", "a/long/path/to/the/traps-north.csv"},  // refused: no effort
+      {"2025-06-01T06:00:00Z,a-rather-long-series-identifier,3,2.5,14.5,80", "a/long/path/to/the/traps-north.csv"},
+      {"# a comment", "n.csv"},                                                        // skip: item kept
+      {"2025-06-01T06:10:00Z,c,5,2,,33.5", "n.csv"},                                   // only the second
+      {"2025-06-01T06:10:00Z,a-rather-long-series-identifier,6,3,-2,", "another/long/source/name.csv"},
+      {"2025-06-01T06:10:00Z,\"quoted, id\",7,1,1,2", "n.csv"},
+      {"1748758800,d,0,0.5,0,0", "n.csv"},
+      {"1748758800,d,1,0.5,,7", "n.csv"},                                              // two, then one
+      {"1748758800,d,x,0.5,0,0", "n.csv"},  // refused: count
+      {"", "n.csv"},                          // skip
+      {"2025-06-01T06:20:00+02:00,e,9,4,,", "n.csv"},
+  };
+  CsvParser reused = header(head);
+  FeedItem item;
+  for (std::size_t i = 0; i < lines.size(); ++i) {
+    const SourcePos where{lines[i].source, i + 2};
+    CsvParser fresh = header(head);
+    ParseOutcome want = fresh.parse(lines[i].text, where);
+    FeedItem want_item;
+    if (want.kind() == LineKind::record) want_item.value = want.record();
+    if (want.kind() == LineKind::rejected) want_item.value = want.rejection();
+
+    const std::string before = verdict(LineKind::record, item);  // what the item holds now
+    const LineKind kind = reused.parse_into(lines[i].text, where, item);
+    INFO("line " << lines[i].text);
+    REQUIRE(kind == want.kind());
+    CHECK(verdict(kind, item) == verdict(want.kind(), want_item));
+    if (kind == LineKind::skip) CHECK(verdict(LineKind::record, item) == before);  // left alone
+  }
+  // The last record, as an independent check of the values themselves:
+  // 06:20 at +02:00 is 04:20 UTC, 1748751600 (2025-06-01T04:20:00Z).
+  REQUIRE(item.is_record());
+  CHECK(item.record().time.time_since_epoch().count() == 1748751600);
+  CHECK(item.record().series == "e");
+  CHECK(item.record().covariates.empty());
+  CHECK(item.record().where.source == "n.csv");
+}
+
 }  // namespace
 }  // namespace tallyd

@@ -1,8 +1,15 @@
 #include "feed/field_check.h"
 
 #include <catch2/catch.hpp>
+#include <fast_float/fast_float.h>
 
+#include <charconv>
+#include <cmath>
+#include <cstdint>
+#include <cstdlib>
+#include <cstring>
 #include <string>
+#include <vector>
 
 namespace tallyd {
 namespace {
@@ -141,6 +148,121 @@ TEST_CASE("time as text and as a number of epoch seconds", "[feed][field]") {
   c = read_epoch_number("1e30", t);
   REQUIRE(c);
   CHECK(c->detail == "time '1e30' is out of range");
+}
+
+// A pseudo-random stream with fixed seed, so that a failure repeats.
+struct Lcg {
+  std::uint32_t state;
+  std::uint32_t next() { return (state = state * 1664525u + 1013904223u) >> 8; }  // Numerical Recipes' constants
+};
+
+bool same_bits(double a, double b) {
+  std::uint64_t x = 0, y = 0;
+  std::memcpy(&x, &a, sizeof a);
+  std::memcpy(&y, &b, sizeof b);
+  return x == y;
+}
+
+TEST_CASE("plain decimals read exactly as fast_float and strtod read them", "[feed][field]") {
+  // Reference: fast_float's from_chars (Lemire 2021, "Number parsing at a
+  // gigabyte per second"), correctly rounded, and glibc's strtod, correctly
+  // rounded to nearest as ISO C and IEEE 754 ask. Inputs: digits with at
+  // most one point, 1 to 18 digits (the quick path takes up to 15), leading
+  // and trailing zeros, plus forms the quick path leaves to the general one.
+  std::vector<std::string> texts = {"0",     "0.0",    "00.5",  "1.0",     "10.0",  "2.5",    "0.1",
+                                    "0.3",   "0.7",    "123.456", "999999999999999", "999999999999.999",
+                                    "0.000000000000001", "9007199254740993", "1234567890123456.7",
+                                    ".5",    "5.",     "1.2.3", "+1",      "-1.5",  "1e5",    "1,5",
+                                    " 1",    "1 ",     "",      ".",       "0x10",  "1_000"};
+  Lcg rng{7};
+  for (int n = 0; n < 20000; ++n) {
+    const std::size_t digits = 1 + rng.next() % 18;
+    const std::size_t point = rng.next() % (digits + 1);  // == digits: no point
+    std::string t;
+    for (std::size_t i = 0; i < digits; ++i) {
+      if (i == point && i > 0) t += '.';
+      const std::uint32_t r = rng.next() % 10;
+      t += static_cast<char>('0' + (rng.next() % 4 == 0 ? 0 : r));  // zeros often
+    }
+    texts.push_back(t);
+  }
+  for (const std::string& t : texts) {
+    INFO("text '" << t << "'");
+    double want = 0;
+    const char* end = t.data() + t.size();
+    const auto [ptr, ec] = fast_float::from_chars(t.data(), end, want);
+    const bool want_ok = !t.empty() && ec == std::errc() && ptr == end && std::isfinite(want);
+    double got = -7;
+    const FieldCheck c = read_covariate("x", t, got);
+    REQUIRE(!c == want_ok);
+    if (!want_ok) continue;
+    CHECK(same_bits(got, want));
+    if (t.find_first_not_of("0123456789.") == std::string::npos) CHECK(same_bits(got, std::strtod(t.c_str(), nullptr)));
+    double exposure = -7;
+    if (!read_exposure(t, exposure)) CHECK(same_bits(exposure, want));
+  }
+}
+
+TEST_CASE("counts of up to 20 digits read as std::from_chars reads them", "[feed][field]") {
+  // Reference: std::from_chars for int64 (C++17 [charconv]); beyond int64 it
+  // reports out of range, which is "too large" here.
+  Lcg rng{11};
+  for (int n = 0; n < 20000; ++n) {
+    const std::size_t digits = 1 + rng.next() % 20;
+    std::string t;
+    for (std::size_t i = 0; i < digits; ++i) t += static_cast<char>('0' + (rng.next() % 3 == 0 ? 9 : rng.next() % 10));
+    INFO("text '" << t << "'");
+    std::int64_t want = 0;
+    const auto [ptr, ec] = std::from_chars(t.data(), t.data() + t.size(), want);
+    REQUIRE(ptr == t.data() + t.size());
+    std::int64_t got = -1;
+    const FieldCheck c = read_count(t, got);
+    if (ec == std::errc()) {
+      REQUIRE_FALSE(c);
+      CHECK(got == want);
+    } else {
+      REQUIRE(c);
+      CHECK(c->detail == "count '" + t + "' is too large");
+    }
+  }
+}
+
+// The series rules of field_check.h, read independently for text whose only
+// byte above 0x7F is a lone 0x80 (never well-formed UTF-8, RFC 3629).
+std::string series_rule(std::string_view text) {
+  std::size_t b = 0, e = text.size();
+  while (b < e && (text[b] == ' ' || text[b] == '\t')) ++b;
+  while (e > b && (text[e - 1] == ' ' || text[e - 1] == '\t')) --e;
+  if (b == e) return "bad_series: series id is empty";
+  if (const std::size_t bad = text.find('\x80'); bad != std::string_view::npos)
+    return "bad_format: series id " + quote_value(text) + " is not valid UTF-8 (byte " + std::to_string(bad + 1) + ")";
+  for (char c : text)
+    if (static_cast<unsigned char>(c) < 0x20 || c == 0x7F)
+      return "bad_format: series id " + quote_value(text) + " contains a control character";
+  return "ok";
+}
+
+TEST_CASE("series ids: every short id over blanks, controls and printables gets the rule's verdict",
+          "[feed][field]") {
+  // All ids of up to 5 bytes from this alphabet (printable ASCII ids take a
+  // quick check, the rest the full one): 19,608 ids.
+  const std::string alphabet = std::string(" \ta~\x1F\x7F") + '\x80';
+  std::size_t checked = 0;
+  for (std::size_t length = 0; length <= 5; ++length) {
+    std::vector<std::size_t> digit(length, 0);
+    while (true) {
+      std::string id;
+      for (std::size_t d : digit) id += alphabet[d];
+      const FieldCheck c = check_series(id);
+      INFO("id " << quote_value(id));
+      REQUIRE((c ? fault_text(c) : "ok") == series_rule(id));
+      ++checked;
+      std::size_t k = 0;
+      while (k < length && ++digit[k] == alphabet.size()) digit[k++] = 0;
+      if (k == length) break;
+    }
+  }
+  CHECK(checked == 19608);
 }
 
 }  // namespace
