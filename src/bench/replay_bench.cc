@@ -3,7 +3,7 @@
 // Engine::ingest over it, once per bounds method.
 //
 //   build/replay_bench [--series N] [--days D] [--window W] [--draws K] [--refit-every R]
-//                      [--workers T] [--method quadrature|simulate|both] [--screen off|on|both]
+//                      [--workers T] [--batch B] [--method quadrature|simulate|both] [--screen off|on|both]
 //                      [--cadences 2,4,7] [--doubt off|on|both] [--annual-harmonics H]
 //                      [--feed-out FILE.csv]
 //
@@ -14,9 +14,12 @@
 // each refit cadence (with model.refit_on_doubt off, on, or both) and
 // compared record by record with refit every record.
 // With --workers T > 1 the series are sharded over T threads
-// (engine/sharded_engine.h), fed in batches of one day of records; the row
-// for T = 1 (plain Engine, one record at a time) is printed first in the
-// same run, so the speed-up is a ratio measured side by side.
+// (engine/sharded_engine.h), fed in batches of one day of records (or of B
+// records with --batch B); the row for T = 1 (plain Engine, one record at a
+// time) is printed first in the same run, so the speed-up is a ratio
+// measured side by side. The sharded row is followed by how long the workers
+// were busy against how long the batches took: the rest is time spent
+// waiting at the end of a batch for the slowest worker (or for a core).
 // With --feed-out the generated feed is written as CSV (time in epoch
 // seconds, series, count, exposure to 17 digits) and nothing is timed: two
 // builds can then replay the same records with `tallyd replay` and their
@@ -46,6 +49,7 @@ struct Args {
   int draws = 10000;
   std::size_t refit_every = 1;
   int workers = 1;
+  int batch = 0;  // records per sharded batch; 0: one day (--series records)
   int annual_harmonics = 1;  // coefficients: intercept, trend, 2 per annual harmonic, 2 weekly
   std::string method = "both";
   std::string screen = "off";
@@ -105,6 +109,7 @@ Args parse_args(int argc, char** argv) {
     else if (k == "--window") a.window = static_cast<std::size_t>(v);
     else if (k == "--draws") a.draws = static_cast<int>(v);
     else if (k == "--workers") a.workers = static_cast<int>(v);
+    else if (k == "--batch") a.batch = static_cast<int>(v);
     else if (k == "--refit-every") a.refit_every = static_cast<std::size_t>(v);
     else if (k == "--annual-harmonics") a.annual_harmonics = static_cast<int>(v);
     else {
@@ -177,11 +182,13 @@ struct Row {
   double seconds;
   EngineCounters counters;
   std::vector<signed char> verdicts;  // per record: 0 none, 1 high, -1 low (bound alerts), 2 not judged
+  double busy_seconds = 0;     // sharded: seconds the workers spent judging, summed
+  double offered_seconds = 0;  // sharded: seconds in batches times workers
 };
 
 Row run_single(const std::vector<Observation>& feed, const SettingsTable& settings) {
   Engine engine(settings);
-  Row row{0, {}, {}};
+  Row row{0, {}, {}, 0, 0};
   row.verdicts.resize(feed.size());
   const auto t0 = std::chrono::steady_clock::now();
   for (std::size_t i = 0; i < feed.size(); ++i) {
@@ -199,19 +206,23 @@ std::size_t differing(const Row& a, const Row& b) {
   return n;
 }
 
-Row run_sharded(const std::vector<Observation>& feed, const SettingsTable& settings, int workers, int series) {
+Row run_sharded(const std::vector<Observation>& feed, const SettingsTable& settings, int workers,
+                std::size_t batch_records) {
   ShardedEngine engine(settings, workers);
   double seconds = 0;
   std::vector<Observation> batch;
-  for (std::size_t from = 0; from < feed.size(); from += static_cast<std::size_t>(series)) {
+  for (std::size_t from = 0; from < feed.size(); from += batch_records) {
     // Copying the batch out is not timed: a service hands out its own buffers.
-    const std::size_t to = std::min(feed.size(), from + static_cast<std::size_t>(series));
+    const std::size_t to = std::min(feed.size(), from + batch_records);
     batch.assign(feed.begin() + static_cast<long>(from), feed.begin() + static_cast<long>(to));
     const auto t0 = std::chrono::steady_clock::now();
     engine.ingest_batch(batch);
     seconds += std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
   }
-  return {seconds, engine.counters(), {}};
+  Row row{seconds, engine.counters(), {}};
+  for (const double b : engine.worker_busy_seconds()) row.busy_seconds += b;
+  row.offered_seconds = engine.batch_seconds() * workers;
+  return row;
 }
 
 // `base` is the first row of the method in this run (refit every record,
@@ -248,8 +259,12 @@ int main(int argc, char** argv) {
       if (!base) base = one;
       print_row(name.c_str(), screen ? "on" : "off", a.refit_every, 1, feed.size(), one, *base);
       if (a.workers > 1) {
-        const Row many = run_sharded(feed, settings, a.workers, a.series);
+        const std::size_t batch = static_cast<std::size_t>(std::max(a.batch > 0 ? a.batch : a.series, 1));
+        const Row many = run_sharded(feed, settings, a.workers, batch);
         print_row(name.c_str(), screen ? "on" : "off", a.refit_every, a.workers, feed.size(), many, *base);
+        std::printf("  %d workers busy %.2f s of %.2f s in batches of %zu: %.1f%% waiting for the slowest worker or a core\n",
+                    a.workers, many.busy_seconds, many.offered_seconds, batch,
+                    100.0 * (many.offered_seconds - many.busy_seconds) / many.offered_seconds);
         std::printf("speed-up %d threads / 1: %.2fx; alerts %s\n", a.workers, one.seconds / many.seconds,
                     one.counters.alerts_high == many.counters.alerts_high &&
                             one.counters.alerts_low == many.counters.alerts_low

@@ -9,6 +9,7 @@
 
 #include "bounds/count_noise.h"
 #include "bounds/mixture.h"
+#include "core/log_gamma.h"
 
 namespace tallyd::bounds {
 namespace {
@@ -34,8 +35,8 @@ struct Walker {
 // log P(Y = k) for one component, from log-gamma: only used to bound
 // components whose pmf underflowed, where a few digits are plenty.
 double log_pmf(const NoiseAt& d, double k) {
-  if (d.poisson) return k * std::log(d.mu) - d.mu - std::lgamma(k + 1);
-  return std::lgamma(k + d.size) - std::lgamma(d.size) - std::lgamma(k + 1) + d.size * std::log1p(-d.q) +
+  if (d.poisson) return k * std::log(d.mu) - d.mu - log_gamma(k + 1);
+  return log_gamma(k + d.size) - log_gamma(d.size) - log_gamma(k + 1) + d.size * std::log1p(-d.q) +
          k * std::log(d.q);
 }
 

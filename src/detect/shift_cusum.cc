@@ -7,6 +7,8 @@
 
 #include <Eigen/Dense>
 
+#include "core/log_gamma.h"
+
 namespace tallyd::detect {
 namespace {
 
@@ -16,9 +18,9 @@ constexpr int kTableStates = 100;  // chain cells for cached limits (the cost is
 // log P(Y = y) under the law.
 double log_pmf(std::int64_t y, const CountLaw& law) {
   const double k = static_cast<double>(y);
-  if (law.poisson()) return k * std::log(law.mean) - law.mean - std::lgamma(k + 1);
+  if (law.poisson()) return k * std::log(law.mean) - law.mean - log_gamma(k + 1);
   const double r = law.size;
-  return std::lgamma(k + r) - std::lgamma(r) - std::lgamma(k + 1) + r * std::log(r / (r + law.mean)) +
+  return log_gamma(k + r) - log_gamma(r) - log_gamma(k + 1) + r * std::log(r / (r + law.mean)) +
          k * std::log(law.mean / (r + law.mean));
 }
 

@@ -14,10 +14,25 @@
 // thread before the batch is handed out, in record order, exactly as Engine
 // applies it; so it too is independent of the sharding.
 //
-// Threads: one per extra worker, started per batch and joined before
-// ingest_batch returns (worker 0 is the calling thread), so no thread
-// outlives a call and nothing is shared between batches. The object itself
-// is not thread-safe: one caller at a time.
+// Threads: a WorkerCrew (engine/worker_crew.h) owned for the object's
+// lifetime: one thread per extra worker, started by the constructor and
+// joined by the destructor; worker 0 is the thread calling ingest_batch.
+// A worker touches its shard only inside ingest_batch, which returns when
+// every worker has finished the batch; an exception thrown on a worker
+// reaches the caller of ingest_batch (the shards then hold whatever the
+// batch had done, as an Engine does after a throwing ingest). The object
+// itself is not thread-safe: one caller at a time.
+//
+// Batch size is the caller's trade-off. Every batch ends at a barrier: the
+// batch takes as long as its slowest shard, and the other workers wait.
+// Larger batches even out the shards' loads (more records per shard, so
+// uneven record costs -- screened records, refits of varying iterations --
+// average out) and pay the handoff fewer times, but a record's result is
+// only returned when its whole batch is done, so the delay to an alert grows
+// with the batch. Measured (docs/benchmarks.md, "Threads, fourth pass"):
+// on 1,000 daily series, batches of one day (1,000 records) already keep
+// the barrier's cost to a few percent; replay (replay/sharded_replay.h)
+// uses 8,192, where the delay does not matter.
 #pragma once
 
 #include <cstddef>
@@ -27,6 +42,7 @@
 #include <vector>
 
 #include "engine/engine.h"
+#include "engine/worker_crew.h"
 
 namespace tallyd {
 
@@ -45,6 +61,10 @@ class ShardedEngine {
   int workers() const { return static_cast<int>(shards_.size()); }
   // Which worker owns `series`: stable_hash(series) mod workers.
   std::size_t shard_of(std::string_view series) const;
+  // Seconds each worker spent judging and seconds spent in batches, over
+  // the object's life (WorkerCrew::busy_seconds): for benchmarks.
+  const std::vector<double>& worker_busy_seconds() const { return crew_.busy_seconds(); }
+  double batch_seconds() const { return crew_.round_seconds(); }
   // Counters summed over the shards, plus records refused here for the
   // series limit: the same totals one Engine would report.
   EngineCounters counters() const;
@@ -56,6 +76,10 @@ class ShardedEngine {
   std::vector<std::unique_ptr<Engine>> shards_;
   EngineLimits limits_;
   std::uint64_t refused_here_ = 0;  // records refused here (too_many_series)
+  // Per worker, the batch's records it owns, in batch order (filled by the
+  // caller, only read by the workers); kept between batches for their capacity.
+  std::vector<std::vector<std::size_t>> picks_;
+  WorkerCrew crew_;                 // declared last: its threads stop before the shards go
 };
 
 }  // namespace tallyd

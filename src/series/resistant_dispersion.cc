@@ -3,6 +3,8 @@
 #include <algorithm>
 #include <cmath>
 
+#include "core/log_gamma.h"
+
 namespace tallyd {
 
 double normal_reweighted_dispersion_factor(double threshold) {
@@ -40,11 +42,11 @@ ReweightedMoments reweighted_moments(double threshold, double mean, double phi) 
   const double theta = poisson ? 0 : mean / (phi - 1);
   const double log_q = poisson ? 0 : std::log(mean / (mean + theta));
   const double log_1mq = poisson ? 0 : std::log(theta / (mean + theta));
-  const double lgamma_theta = poisson ? 0 : std::lgamma(theta);
+  const double lgamma_theta = poisson ? 0 : log_gamma(theta);
   const double log_mean = std::log(mean);
   auto log_pmf = [&](double y) {
-    return poisson ? y * log_mean - mean - std::lgamma(y + 1)
-                   : std::lgamma(y + theta) - lgamma_theta - std::lgamma(y + 1) + theta * log_1mq + y * log_q;
+    return poisson ? y * log_mean - mean - log_gamma(y + 1)
+                   : log_gamma(y + theta) - lgamma_theta - log_gamma(y + 1) + theta * log_1mq + y * log_q;
   };
   // From 10 sd below the mean to 15 above (right skew): the mass outside is
   // negligible, and each count there adds at most about 1 to E[v r^2]. Past

@@ -140,3 +140,41 @@ TEST_CASE("a series always lands on the same worker", "[engine]") {
   CHECK(two.shard_of("site-1") == bounds::stable_hash("site-1") % 2);
   CHECK(ShardedEngine(s, 0).workers() == 1);
 }
+
+// Series that appear one by one, fed in small batches on persistent workers:
+// the early batches cannot reach the series limit (the admission pass is
+// skipped for them), later ones straddle it. Reference: one Engine fed the
+// same records one by one.
+TEST_CASE("sharded admission skipped only while the limit cannot bind, over many small batches", "[engine]") {
+  std::vector<Observation> feed;
+  for (const Observation& o : mixed_feed()) {
+    const int site = std::stoi(o.series.substr(5));
+    const int day = static_cast<int>((o.time - parse_time("2025-03-01T06:00:00Z").value()).count() / 86400);
+    if (day >= site && day < 45) feed.push_back(o);  // site s first reports on day s
+  }
+  const SettingsTable s = settings(bounds::Method::quadrature);
+  EngineLimits limits;
+  limits.max_series = 20;
+  Engine single(s, limits);
+  std::vector<IngestResult> want;
+  for (const Observation& o : feed) want.push_back(single.ingest(o));
+  REQUIRE(single.counters().rejected[RejectReason::too_many_series] > 0);
+
+  ShardedEngine sharded(s, 2, limits);
+  std::vector<IngestResult> got;
+  std::size_t batches = 0;
+  for (std::size_t from = 0; from < feed.size(); ++batches) {
+    const std::size_t n = std::min<std::size_t>(feed.size() - from, 1 + batches % 7);
+    const std::vector<Observation> batch(feed.begin() + static_cast<long>(from),
+                                         feed.begin() + static_cast<long>(from + n));
+    for (IngestResult& r : sharded.ingest_batch(batch)) got.push_back(std::move(r));
+    from += n;
+  }
+  REQUIRE(batches > 100);
+  REQUIRE(got.size() == want.size());
+  for (std::size_t i = 0; i < got.size(); ++i) check_same(got[i], want[i]);
+  CHECK(sharded.counters().rejected.by_reason == single.counters().rejected.by_reason);
+  CHECK(sharded.series_count() == 20);
+  REQUIRE(sharded.worker_busy_seconds().size() == 2);
+  CHECK(sharded.batch_seconds() > 0);
+}
