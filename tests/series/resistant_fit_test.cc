@@ -76,16 +76,16 @@ TEST_CASE("guard band: the newest records stay out of the fit that judges the ne
 
 namespace {
 
-// Quasi-Poisson dispersion of one window of 156 weekly negative binomial
-// counts, mean 10, Var = 2 * mean (theta = 10); `outbreaks` spells of 4
-// weeks get 5 standard deviations extra (at weeks 20, 70, 120).
-double window_dispersion(bool reweight, std::uint64_t seed, int outbreaks, std::size_t rounds = 1) {
+// One quasi-Poisson fit, after the last record, of a window of 156 weekly
+// negative binomial counts, mean 10, Var = 2 * mean (theta = 10);
+// `outbreaks` spells of 4 weeks get 5 standard deviations extra (at weeks
+// 20, 70, 120). `model` carries the resistant-training keys to try.
+glm::FitResult window_fit(std::uint64_t seed, int outbreaks, const ModelSpec& model_keys) {
   static SeriesSettings settings;  // must outlive the model; rewritten per call
+  settings.model = model_keys;
   settings.model.family = glm::Family::quasipoisson;
   settings.model.window = Window{std::nullopt, 156};
   settings.model.min_history = 156;  // one fit, after the last record
-  settings.model.reweight = reweight;
-  settings.model.reweight_rounds = rounds;
   SeriesModel model("trap-d", settings);
   bounds::Rng rng(seed);
   for (int week = 0; week < 156; ++week) {
@@ -98,7 +98,15 @@ double window_dispersion(bool reweight, std::uint64_t seed, int outbreaks, std::
     model.learn(o);
   }
   REQUIRE(model.has_fit());
-  return model.fit().dispersion;
+  return model.fit();
+}
+
+// The fit's quasi-Poisson dispersion.
+double window_dispersion(bool reweight, std::uint64_t seed, int outbreaks, std::size_t rounds = 1) {
+  ModelSpec keys;
+  keys.reweight = reweight;
+  keys.reweight_rounds = rounds;
+  return window_fit(seed, outbreaks, keys).dispersion;
 }
 
 }  // namespace
@@ -154,27 +162,13 @@ TEST_CASE("more reweighting rounds unmask past outbreaks and stay consistent wit
 
 namespace {
 
-// Fitted mean of one outbreak-free window of 156 weekly negative binomial
-// counts, mean 10, Var = 2 * mean, resistant at `threshold`.
+// Fitted mean of one outbreak-free window (window_fit), resistant at `threshold`.
 double window_mean(std::uint64_t seed, double threshold, bool mean_correction) {
-  static SeriesSettings settings;  // must outlive the model; rewritten per call
-  settings.model.family = glm::Family::quasipoisson;
-  settings.model.window = Window{std::nullopt, 156};
-  settings.model.min_history = 156;
-  settings.model.reweight = true;
-  settings.model.reweight_threshold = threshold;
-  settings.model.reweight_mean_correction = mean_correction;
-  SeriesModel model("trap-m", settings);
-  bounds::Rng rng(seed);
-  for (int week = 0; week < 156; ++week) {
-    Observation o;
-    o.series = "trap-m";
-    o.time = TimePoint{Seconds{1600000000 + static_cast<std::int64_t>(week) * 7 * 86400}};
-    o.count = rng.negbin(10, 10);
-    model.learn(o);
-  }
-  REQUIRE(model.has_fit());
-  return std::exp(model.fit().coefficients(0));
+  ModelSpec keys;
+  keys.reweight = true;
+  keys.reweight_threshold = threshold;
+  keys.reweight_mean_correction = mean_correction;
+  return std::exp(window_fit(seed, 0, keys).coefficients(0));
 }
 
 }  // namespace
