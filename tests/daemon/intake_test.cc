@@ -2,8 +2,6 @@
 
 #include <catch2/catch.hpp>
 
-#include <fstream>
-#include <sstream>
 
 #include "support/temp_dir.h"
 
@@ -19,13 +17,6 @@ Observation at(const std::string& series, std::int64_t days, std::int64_t count)
   o.count = count;
   o.where = SourcePos{"push", static_cast<std::uint64_t>(days + 1)};
   return o;
-}
-
-std::string read_all(const std::string& path) {
-  std::ifstream in(path);
-  std::ostringstream s;
-  s << in.rdbuf();
-  return s.str();
 }
 
 }  // namespace
@@ -57,7 +48,7 @@ TEST_CASE("intake writes silence and recovery lines, and a tick moves the clock 
   ParseOutcome back = ParseOutcome::of(at("meter-1", 31, 6));
   intake.offer(back, figures, std::chrono::steady_clock::now());
   intake.tick(at("x", 33, 0).time);  // releases day 31 (tolerance 1 day)
-  const std::string text = read_all(json);
+  const std::string text = testing::read_text(json);
   CHECK(text ==
         R"({"time":"2025-07-13T05:00:00Z","series":"meter-1","count":0,"expected":0.0000,"lower":0,"upper":0,"p_value":1,"direction":"low","exposure":0,"alpha":0,"detector":"silence","statistic":86400,"episode":"meter-1/low/1","episode_state":"new","last_seen":"2025-07-10T05:00:00Z"})"
         "\n"

@@ -4,8 +4,6 @@
 
 #include <atomic>
 #include <filesystem>
-#include <fstream>
-#include <sstream>
 
 #include "support/temp_dir.h"
 
@@ -38,13 +36,6 @@ LineBatch days(SourceFigures& figures, std::int64_t from, std::int64_t to, std::
   return b;
 }
 
-std::string read_all(const std::string& path) {
-  std::ifstream in(path);
-  std::ostringstream s;
-  s << in.rdbuf();
-  return s.str();
-}
-
 }  // namespace
 
 TEST_CASE("judging thread: a checkpoint records exactly the batches judged before it", "[daemon][judge]") {
@@ -73,7 +64,7 @@ TEST_CASE("judging thread: a checkpoint records exactly the batches judged befor
   std::string middle;
   handoff.push(days(figures, 0, 20, 400));
   judge.request_checkpoint();
-  handoff.post([&] { middle = read_all(dir.path("state.ckpt")); });
+  handoff.post([&] { middle = testing::read_text(dir.path("state.ckpt")); });
   handoff.push(days(figures, 20, 30, 600));  // day 25 is a spike: an alert after the middle checkpoint
   handoff.close();                           // a graceful stop: drain, then the final checkpoint
   judge.join();

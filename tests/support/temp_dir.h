@@ -4,6 +4,7 @@
 
 #include <filesystem>
 #include <fstream>
+#include <iterator>
 #include <random>
 #include <string>
 #include <string_view>
@@ -41,5 +42,11 @@ class TempDir {
  private:
   std::filesystem::path dir_;
 };
+
+// The whole content of the file at `path` (empty when it cannot be read).
+inline std::string read_text(const std::string& path) {
+  std::ifstream in(path, std::ios::binary);
+  return std::string(std::istreambuf_iterator<char>(in), std::istreambuf_iterator<char>());
+}
 
 }  // namespace tallyd::testing
