@@ -34,6 +34,15 @@ Observation record(std::int64_t count, int week) {
   return o;
 }
 
+// Week t of a weekly series that starts on Monday 2010-01-04.
+Observation weekly(const std::string& series, int t, std::int64_t count) {
+  Observation o;
+  o.series = series;
+  o.time = TimePoint{Seconds{1262563200 + static_cast<std::int64_t>(t) * 7 * 86400}};
+  o.count = count;
+  return o;
+}
+
 // Weekly series as the engine-level tests here fit them: quasi-Poisson, a
 // yearly season with `harmonics` pairs, a two-year window, judged from week 52.
 SettingsTable weekly_settings(int harmonics, bool trend = false) {
@@ -200,10 +209,8 @@ TEST_CASE("every detector's in-control alarm rate on fitted models of outbreak-f
   for (int t = 0; t < weeks; ++t) {
     const double mean = 5 * std::exp(0.5 * std::cos(2 * M_PI * t / 52.0));
     for (int s = 0; s < series; ++s) {
-      Observation o;
-      o.series = "field-" + std::to_string(s);
-      o.time = TimePoint{Seconds{1262563200 + static_cast<std::int64_t>(t) * 7 * 86400}};
-      o.count = rng.poisson(mean);
+      const std::int64_t count = rng.poisson(mean);
+      const Observation o = weekly("field-" + std::to_string(s), t, count);
       IngestResult r = engine.ingest(o);
       released(r.released);
       if (r.kind != IngestResult::Kind::judged) continue;
@@ -253,11 +260,8 @@ TEST_CASE("fitted model: a sustained doubling of a mean-5 weekly series is flagg
   for (int s = 0; s < series; ++s) {
     int first = -1;
     for (int t = 0; t < change + 8; ++t) {
-      Observation o;
-      o.series = "trap-" + std::to_string(s);
-      o.time = TimePoint{Seconds{1262563200 + static_cast<std::int64_t>(t) * 7 * 86400}};
-      o.count = rng.poisson(t >= change ? 10.0 : 5.0);
-      IngestResult r = engine.ingest(o);
+      const std::int64_t count = rng.poisson(t >= change ? 10.0 : 5.0);
+      IngestResult r = engine.ingest(weekly("trap-" + std::to_string(s), t, count));
       for (const Alert& a : r.detector_alerts)
         if (a.detector == detect::kShiftLabel && t >= change && first < 0) first = t - change + 1;
     }
@@ -301,10 +305,8 @@ TEST_CASE("shift CUSUM on fitted models: realised in-control run length brackets
   for (int t = 0; t < weeks; ++t) {
     const double mean = 5 * std::exp(0.5 * std::cos(2 * M_PI * t / 52.0));
     for (int s = 0; s < series; ++s) {
-      Observation o;
-      o.series = "plot-" + std::to_string(s);
-      o.time = TimePoint{Seconds{1262563200 + static_cast<std::int64_t>(t) * 7 * 86400}};
-      o.count = rng.negbin(mean, mean);  // size mu: Var = 2 mu
+      const std::int64_t count = rng.negbin(mean, mean);  // size mu: Var = 2 mu
+      const Observation o = weekly("plot-" + std::to_string(s), t, count);
       IngestResult r = engine.ingest(o);
       if (r.kind != IngestResult::Kind::judged) continue;
       ++judged[s];
