@@ -82,6 +82,8 @@ class StateReader {
   const std::string& error() const { return error_; }
   // True when nothing is left (text: only whitespace).
   bool at_end();
+  // Bytes not read yet (an upper bound on what the state still holds).
+  std::size_t remaining() const { return text_.size() - pos_; }
 
  private:
   std::string_view token();

@@ -8,11 +8,22 @@
 #include "series/resistant_dispersion.h"
 
 namespace tallyd {
+namespace {
+
+// The most rows a series' history rings grow to on their own.
+std::size_t window_rows(const ModelSpec& spec) {
+  return spec.window.records.value_or(std::numeric_limits<std::size_t>::max());
+}
+
+}  // namespace
 
 SeriesModel::SeriesModel(std::string id, const SeriesSettings& settings)
     : id_(std::move(id)),
       settings_(&settings),
       p_(coefficient_count(settings.model)),
+      records_(1, window_rows(settings.model)),
+      covariate_values_(settings.model.covariates.size(), window_rows(settings.model)),
+      season_values_(static_cast<std::size_t>(season_column_count(settings.model)), window_rows(settings.model)),
       seasons_per_row_(season_column_count(settings.model)) {}
 
 std::optional<std::string> SeriesModel::missing_covariate(const Observation& obs) const {
@@ -31,7 +42,7 @@ bool SeriesModel::ready() const {
 
 std::optional<TimePoint> SeriesModel::last_time() const {
   if (records_.empty()) return std::nullopt;
-  return records_.back().time;
+  return records_.row(records_.size() - 1)->time;
 }
 
 std::vector<double> SeriesModel::covariates_of(const Observation& obs) const {
@@ -82,36 +93,34 @@ Prediction SeriesModel::predict(const Observation& obs, bool allow_screen) const
 }
 
 bool SeriesModel::season_cache_ok() const {
-  return season_values_.size() == records_.size() * static_cast<std::size_t>(seasons_per_row_);
+  return seasons_per_row_ == 0 || season_values_.size() == records_.size();
 }
 
 void SeriesModel::push_season_values(TimePoint time) {
-  const std::size_t at = season_values_.size();
-  season_values_.resize(at + static_cast<std::size_t>(seasons_per_row_));
-  constexpr int kOnStack = 32;
-  if (seasons_per_row_ <= kOnStack) {
-    double row[kOnStack];
-    season_columns(settings_->model, time, row);
-    std::copy(row, row + seasons_per_row_, season_values_.begin() + static_cast<long>(at));
-    return;
-  }
-  std::vector<double> row(static_cast<std::size_t>(seasons_per_row_));
-  season_columns(settings_->model, time, row.data());
-  std::copy(row.begin(), row.end(), season_values_.begin() + static_cast<long>(at));
+  season_columns(settings_->model, time, season_values_.push_back());
 }
 
 void SeriesModel::fill_season_cache() {
   season_values_.clear();
-  for (const Stored& r : records_) push_season_values(r.time);
+  season_values_.reserve(records_.size());
+  for (std::size_t i = 0; i < records_.size(); ++i) push_season_values(records_.row(i)->time);
 }
 
 void SeriesModel::learn(const Observation& obs, double weight) {
   if (!origin_) origin_ = obs.time;
   if (!season_cache_ok()) fill_season_cache();  // restored from a checkpoint
-  records_.push_back(Stored{obs.time, obs.count, obs.exposure, weight});
-  for (const std::string& name : settings_->model.covariates) {
-    const double* v = obs.covariate(name);
-    covariate_values_.push_back(v ? *v : 0.0);
+  // Room first, so that a window of R records never needs a block of R + 1
+  // rows: dropping the oldest before the push leaves the same window as
+  // dropping it after (trim_window drops a prefix either way).
+  const std::optional<std::size_t> limit = settings_->model.window.records;
+  if (limit && *limit > 0 && records_.size() >= *limit) drop_oldest(records_.size() - *limit + 1);
+  *records_.push_back() = Stored{obs.time, obs.count, obs.exposure, weight};
+  if (!settings_->model.covariates.empty()) {
+    double* row = covariate_values_.push_back();
+    for (const std::string& name : settings_->model.covariates) {
+      const double* v = obs.covariate(name);
+      *row++ = v ? *v : 0.0;
+    }
   }
   if (seasons_per_row_ > 0) push_season_values(obs.time);
   trim_window(obs.time);
@@ -122,46 +131,44 @@ void SeriesModel::learn(const Observation& obs, double weight) {
   }
 }
 
+void SeriesModel::drop_oldest(std::size_t rows) {
+  records_.pop_front(rows);
+  if (!settings_->model.covariates.empty()) covariate_values_.pop_front(rows);
+  if (seasons_per_row_ > 0) {
+    // A cache out of step (a restored model before its first learn) is refilled by learn().
+    if (season_values_.size() == records_.size() + rows) season_values_.pop_front(rows);
+    else season_values_.clear();
+  }
+}
+
 void SeriesModel::trim_window(TimePoint latest) {
   const Window& w = settings_->model.window;
-  const std::size_t k = settings_->model.covariates.size();
-  const bool cached = season_cache_ok();
-  auto drop_front = [&] {
-    records_.pop_front();
-    covariate_values_.erase(covariate_values_.begin(), covariate_values_.begin() + static_cast<long>(k));
-    if (cached) season_values_.erase(season_values_.begin(), season_values_.begin() + seasons_per_row_);
-  };
+  std::size_t drop = 0;
   if (w.span) {
-    while (!records_.empty() && records_.front().time <= latest - *w.span) drop_front();
+    while (drop < records_.size() && records_.row(drop)->time <= latest - *w.span) ++drop;
   }
-  if (w.records) {
-    while (records_.size() > *w.records) drop_front();
-  }
+  if (w.records && records_.size() - drop > *w.records) drop = records_.size() - *w.records;
+  if (drop > 0) drop_oldest(drop);
 }
 
 void SeriesModel::build_design(Eigen::MatrixXd& X, Eigen::VectorXd& y, Eigen::VectorXd& offset,
                                Eigen::VectorXd& weights, std::size_t rows) const {
   const std::size_t n = std::min(rows, records_.size());
-  const std::size_t k = settings_->model.covariates.size();
   X.resize(static_cast<Eigen::Index>(n), p_);
   y.resize(static_cast<Eigen::Index>(n));
   offset.resize(static_cast<Eigen::Index>(n));
   weights.resize(static_cast<Eigen::Index>(n));
-  std::vector<double> cov(k);
   const bool cached = season_cache_ok();
-  const auto s = static_cast<std::size_t>(seasons_per_row_);
-  std::vector<double> seasons(s);
   for (std::size_t i = 0; i < n; ++i) {
-    const Stored& r = records_[i];
-    for (std::size_t c = 0; c < k; ++c) cov[c] = covariate_values_[i * k + c];
+    const Stored& r = *records_.row(i);
+    const double* cov = covariate_values_.row(i);
     const auto row = static_cast<Eigen::Index>(i);
     if (!cached) {
-      offset(row) = row_for(r.time, r.exposure, cov.data(), X.row(row));
+      offset(row) = row_for(r.time, r.exposure, cov, X.row(row));
     } else {
       // The same row as row_for, with the seasonal columns kept since learn().
-      for (std::size_t c = 0; c < s; ++c) seasons[c] = season_values_[i * s + c];
-      const DesignInput in{r.time, origin_.value_or(r.time), r.exposure, cov.data()};
-      offset(row) = design_row(settings_->model, in, seasons.data(), X.row(row));
+      const DesignInput in{r.time, origin_.value_or(r.time), r.exposure, cov};
+      offset(row) = design_row(settings_->model, in, season_values_.row(i), X.row(row));
     }
     y(row) = static_cast<double>(r.count);
     weights(row) = r.weight;

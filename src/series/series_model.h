@@ -10,7 +10,6 @@
 #pragma once
 
 #include <cstdint>
-#include <deque>
 #include <optional>
 #include <string>
 #include <vector>
@@ -22,6 +21,7 @@
 #include "glm/fit.h"
 #include "series/design.h"
 #include "series/model_spec.h"
+#include "series/ring.h"
 
 namespace tallyd {
 
@@ -71,7 +71,7 @@ class SeriesModel {
 
   std::optional<TimePoint> last_time() const;
   // Time of the oldest record still in the window. Precondition: history_size() > 0.
-  TimePoint first_time_in_window() const { return records_.front().time; }
+  TimePoint first_time_in_window() const { return records_.row(0)->time; }
   std::size_t history_size() const { return records_.size(); }
   std::size_t min_history() const;  // effective: max(spec min_history, #coefficients + 2)
   const glm::FitResult& fit() const { return fit_; }
@@ -101,6 +101,8 @@ class SeriesModel {
   };
 
   void trim_window(TimePoint latest);
+  // Drops the `rows` oldest records with their covariates and seasonal columns.
+  void drop_oldest(std::size_t rows);
   // The design of the oldest `rows` records of the window.
   void build_design(Eigen::MatrixXd& X, Eigen::VectorXd& y, Eigen::VectorXd& offset,
                     Eigen::VectorXd& weights, std::size_t rows) const;
@@ -125,13 +127,17 @@ class SeriesModel {
   int p_;  // number of coefficients
 
   std::optional<TimePoint> origin_;   // first accepted record: trend zero
-  std::deque<Stored> records_;
-  std::deque<double> covariate_values_;  // covariates of records_, flattened (spec order)
-  // The seasonal design columns of records_ (season_columns, flattened), so
-  // that a refit copies them instead of computing sin/cos for the whole
+  // The window, oldest first, each in one block (series/ring.h) sized up to
+  // the window's record limit: a series holds two or three allocations of
+  // history instead of a deque's dozen blocks, and a restore fills them with
+  // one reservation each.
+  Ring<Stored> records_;
+  Ring<double> covariate_values_;  // covariates of records_, one row each (spec order)
+  // The seasonal design columns of records_ (season_columns), one row each,
+  // so that a refit copies them instead of computing sin/cos for the whole
   // window. Derived from the times, not saved: a restored model (or one that
   // has none yet) fills it at its next learn().
-  std::deque<double> season_values_;
+  Ring<double> season_values_;
   int seasons_per_row_ = 0;  // season_column_count(spec)
   bool season_cache_ok() const;
   void fill_season_cache();

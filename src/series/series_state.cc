@@ -1,5 +1,6 @@
 // Saving and restoring a SeriesModel exactly: a model restored from its saved
 // state makes the same predictions, bit for bit, as the one that was saved.
+#include <algorithm>
 #include <bit>
 #include <cstdint>
 
@@ -108,7 +109,7 @@ void SeriesModel::save_state(StateWriter& w) const {
   const std::size_t k = settings_->model.covariates.size();
   std::int64_t previous = 0;
   for (std::size_t i = 0; i < records_.size(); ++i) {
-    const Stored& s = records_[i];
+    const Stored& s = *records_.row(i);
     const std::int64_t time = s.time.time_since_epoch().count();
     if (w.binary()) {
       // The history is most of a checkpoint: a record is a flags byte, its
@@ -127,7 +128,8 @@ void SeriesModel::save_state(StateWriter& w) const {
       w.f64(s.exposure);
       w.f64(s.weight);
     }
-    for (std::size_t c = 0; c < k; ++c) w.f64(covariate_values_[i * k + c]);
+    const double* cov = covariate_values_.row(i);
+    for (std::size_t c = 0; c < k; ++c) w.f64(cov[c]);
     w.newline();
   }
   save_fit(w, fit_);
@@ -155,9 +157,15 @@ void SeriesModel::load_state(StateReader& r) {
   records_.clear();
   covariate_values_.clear();
   season_values_.clear();  // derived from the times; refilled by the next learn()
+  // One block for the whole history. A record takes at least 3 bytes of the
+  // state (binary: flags, time step, count; text: more), so a damaged count
+  // cannot reserve more than the state could hold.
+  const std::size_t rows = static_cast<std::size_t>(std::min<std::uint64_t>(n, r.remaining() / 3));
+  records_.reserve(rows);
+  if (k > 0) covariate_values_.reserve(rows);
   std::int64_t previous = 0;
   for (std::uint64_t i = 0; i < n && !r.failed(); ++i) {
-    Stored s{};
+    Stored& s = *records_.push_back();
     if (r.binary()) {
       const std::uint64_t flags = r.u64();
       if (flags > (kUnitExposure | kUnitWeight)) r.fail(fmt::format("history record flags {} unknown", flags));
@@ -172,8 +180,10 @@ void SeriesModel::load_state(StateReader& r) {
       s.exposure = r.f64();
       s.weight = r.f64();
     }
-    records_.push_back(s);
-    for (std::uint64_t c = 0; c < k; ++c) covariate_values_.push_back(r.f64());
+    if (k > 0) {
+      double* cov = covariate_values_.push_back();
+      for (std::uint64_t c = 0; c < k; ++c) cov[c] = r.f64();
+    }
   }
   load_fit(r, fit_, p_);
 }
