@@ -1,6 +1,6 @@
 // Checkpoint write and restore times (benchmark, not a test).
 //
-//   build/restore_bench [--series N] [--window W] [--dir DIR]
+//   build/restore_bench [--series N] [--window W] [--dir DIR] [--keep 1]
 //
 // Builds an engine of N daily series (default 100,000), each with a full
 // window of W records (default 156) fitted once, as memory_bench does
@@ -15,7 +15,9 @@
 // with --restore-only 1 to time steps 1 and 3 in a fresh process, as at a
 // service restart: there the heap is empty, while in this process it is
 // full of the building's freed scratch. The restored engine is checked to hold the same series count and
-// the same state text as the one written.
+// the same state text as the one written. With --keep 1 the file
+// (DIR/restore_bench.checkpoint) is left in place, so that a profiler can run
+// `restore_bench --restore-only 1` on it alone.
 #include <fcntl.h>
 #include <sys/resource.h>
 #include <sys/stat.h>
@@ -99,6 +101,7 @@ int main(int argc, char** argv) {
   long window = 156;
   std::string dir = "/tmp";
   bool only_restore = false;
+  bool keep = false;
   for (int i = 1; i + 1 < argc; i += 2) {
     const std::string k = argv[i];
     if (k == "--dir") {
@@ -108,6 +111,7 @@ int main(int argc, char** argv) {
     const long v = std::strtol(argv[i + 1], nullptr, 10);
     if (k == "--series") series = v;
     else if (k == "--restore-only") only_restore = v != 0;
+    else if (k == "--keep") keep = v != 0;
     else if (k == "--window") window = v;
     else {
       std::fprintf(stderr, "unknown option %s\n", argv[i]);
@@ -166,7 +170,7 @@ int main(int argc, char** argv) {
   const std::string again = std::string(argv[0]) + " --restore-only 1 --series " + std::to_string(series) +
                             " --window " + std::to_string(window) + " --dir '" + dir + "'";
   const int child = std::system(again.c_str());
-  std::remove(path.c_str());
+  if (!keep) std::remove(path.c_str());
   if (child != 0) return 1;
   return same ? 0 : 1;
 }

@@ -31,10 +31,13 @@
 #pragma once
 
 #include <cstdint>
+#include <memory>
 #include <string>
 #include <string_view>
 
 namespace tallyd {
+
+class BulkMemory;
 
 enum class StateLayout { text, binary };
 
@@ -84,6 +87,11 @@ class StateReader {
   bool at_end();
   // Bytes not read yet (an upper bound on what the state still holds).
   std::size_t remaining() const { return text_.size() - pos_; }
+  // Memory that loaders may carve what they restore out of
+  // (core/bulk_memory.h), keeping the shared_ptr while they use it; nullptr
+  // (the default) when they should allocate as usual.
+  void offer_memory(std::shared_ptr<BulkMemory> memory) { memory_ = std::move(memory); }
+  const std::shared_ptr<BulkMemory>& memory() const { return memory_; }
 
  private:
   std::string_view token();
@@ -93,6 +101,7 @@ class StateReader {
   bool binary_;
   std::size_t pos_ = 0;
   std::string error_;
+  std::shared_ptr<BulkMemory> memory_;
 };
 
 // The byte a binary tag is written as.

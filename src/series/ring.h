@@ -15,6 +15,11 @@
 //   (past it the ring doubles again). reserve(n) makes room for n rows
 //   at once, whatever `max_rows` says. Growing copies the rows, oldest first,
 //   to the start of the new block.
+// - adopt(block, rows) makes an empty ring use `block` (room for `rows`
+//   rows, aligned for T) instead of allocating: for a restore that carves
+//   every series' history out of one mapping (core/bulk_memory.h). The ring
+//   never frees an adopted block; its owner keeps it alive as long as the
+//   ring. Growing past it moves the rows to a block of the ring's own.
 // - Width 0 counts rows and allocates nothing; row() is then nullptr.
 // - Copying copies the rows (into a block of exactly size() rows); moving
 //   takes the block and leaves the source empty.
@@ -45,7 +50,8 @@ class Ring {
     if (this != &other) {
       width_ = other.width_;
       max_rows_ = other.max_rows_;
-      data_.reset();
+      owned_.reset();
+      data_ = nullptr;
       capacity_ = head_ = size_ = 0;
       copy_from(other);
     }
@@ -67,8 +73,8 @@ class Ring {
   std::size_t capacity() const { return capacity_; }
 
   // Precondition: i < size().
-  T* row(std::size_t i) { return width_ == 0 ? nullptr : data_.get() + slot(i) * width_; }
-  const T* row(std::size_t i) const { return width_ == 0 ? nullptr : data_.get() + slot(i) * width_; }
+  T* row(std::size_t i) { return width_ == 0 ? nullptr : data_ + slot(i) * width_; }
+  const T* row(std::size_t i) const { return width_ == 0 ? nullptr : data_ + slot(i) * width_; }
 
   // A new row at the back, its elements unspecified; returns it.
   T* push_back() {
@@ -100,6 +106,16 @@ class Ring {
     if (width_ != 0 && rows > capacity_) regrow(rows);
   }
 
+  // Uses `block` (rows * width() elements) as storage from now on; the
+  // ring's own block, if any, is freed. Precondition: empty().
+  void adopt(T* block, std::size_t rows) {
+    if (width_ == 0) return;
+    owned_.reset();
+    data_ = block;
+    capacity_ = rows;
+    head_ = size_ = 0;
+  }
+
  private:
   std::size_t slot(std::size_t i) const {
     const std::size_t s = head_ + i;
@@ -112,9 +128,10 @@ class Ring {
     std::unique_ptr<T[]> block = std::make_unique_for_overwrite<T[]>(rows * width_);
     // The rows in order: [head_, capacity_) then [0, wrapped).
     const std::size_t first = std::min(size_, capacity_ - head_);
-    if (first != 0) std::memcpy(block.get(), data_.get() + head_ * width_, first * width_ * sizeof(T));
-    if (size_ > first) std::memcpy(block.get() + first * width_, data_.get(), (size_ - first) * width_ * sizeof(T));
-    data_ = std::move(block);
+    if (first != 0) std::memcpy(block.get(), data_ + head_ * width_, first * width_ * sizeof(T));
+    if (size_ > first) std::memcpy(block.get() + first * width_, data_, (size_ - first) * width_ * sizeof(T));
+    owned_ = std::move(block);
+    data_ = owned_.get();
     capacity_ = rows;
     head_ = 0;
   }
@@ -122,7 +139,8 @@ class Ring {
   void copy_from(const Ring& other) {
     size_ = other.size_;
     if (width_ == 0 || size_ == 0) return;
-    data_ = std::make_unique_for_overwrite<T[]>(size_ * width_);
+    owned_ = std::make_unique_for_overwrite<T[]>(size_ * width_);
+    data_ = owned_.get();
     capacity_ = size_;
     for (std::size_t i = 0; i < size_; ++i) std::memcpy(row(i), other.row(i), width_ * sizeof(T));
   }
@@ -130,6 +148,7 @@ class Ring {
   void swap(Ring& other) noexcept {
     std::swap(width_, other.width_);
     std::swap(max_rows_, other.max_rows_);
+    std::swap(owned_, other.owned_);
     std::swap(data_, other.data_);
     std::swap(capacity_, other.capacity_);
     std::swap(head_, other.head_);
@@ -138,7 +157,8 @@ class Ring {
 
   std::size_t width_ = 1;
   std::size_t max_rows_ = std::numeric_limits<std::size_t>::max();
-  std::unique_ptr<T[]> data_;
+  std::unique_ptr<T[]> owned_;  // the block, unless adopted
+  T* data_ = nullptr;           // the block in use
   std::size_t capacity_ = 0;  // rows
   std::size_t head_ = 0;      // slot of the oldest row
   std::size_t size_ = 0;      // rows

@@ -10,6 +10,7 @@
 #pragma once
 
 #include <cstdint>
+#include <memory>
 #include <optional>
 #include <string>
 #include <vector>
@@ -25,6 +26,7 @@
 
 namespace tallyd {
 
+class BulkMemory;
 class StateWriter;
 class StateReader;
 
@@ -89,7 +91,9 @@ class SeriesModel {
   // Replaces this model's state with one saved by save_state for the same
   // settings. On failure the reader carries the error and this model must be
   // discarded (it may be partly overwritten). A coefficient count that does
-  // not match the settings is a failure.
+  // not match the settings is a failure. When the reader offers memory
+  // (StateReader::memory), the history is placed in it and the model keeps
+  // a share of it.
   void load_state(StateReader& r);
 
  private:
@@ -127,6 +131,9 @@ class SeriesModel {
   int p_;  // number of coefficients
 
   std::optional<TimePoint> origin_;   // first accepted record: trend zero
+  // The mapping a restore placed the rings' blocks in, if any (kept alive
+  // while they are in use; series_state.cc).
+  std::shared_ptr<BulkMemory> bulk_;
   // The window, oldest first, each in one block (series/ring.h) sized up to
   // the window's record limit: a series holds two or three allocations of
   // history instead of a deque's dozen blocks, and a restore fills them with

@@ -6,6 +6,7 @@
 
 #include <fmt/format.h>
 
+#include "core/bulk_memory.h"
 #include "core/state_codec.h"
 #include "series/series_model.h"
 
@@ -161,8 +162,22 @@ void SeriesModel::load_state(StateReader& r) {
   // state (binary: flags, time step, count; text: more), so a damaged count
   // cannot reserve more than the state could hold.
   const std::size_t rows = static_cast<std::size_t>(std::min<std::uint64_t>(n, r.remaining() / 3));
-  records_.reserve(rows);
-  if (k > 0) covariate_values_.reserve(rows);
+  bulk_.reset();
+  const std::shared_ptr<BulkMemory> bulk = rows > 0 ? r.memory() : nullptr;
+  if (void* block = bulk ? bulk->take(rows * sizeof(Stored)) : nullptr) {
+    records_.adopt(static_cast<Stored*>(block), rows);
+    bulk_ = bulk;
+  } else {
+    records_.reserve(rows);
+  }
+  if (k > 0) {
+    if (void* block = bulk ? bulk->take(rows * k * sizeof(double)) : nullptr) {
+      covariate_values_.adopt(static_cast<double*>(block), rows);
+      bulk_ = bulk;
+    } else {
+      covariate_values_.reserve(rows);
+    }
+  }
   std::int64_t previous = 0;
   for (std::uint64_t i = 0; i < n && !r.failed(); ++i) {
     Stored& s = *records_.push_back();

@@ -5,6 +5,7 @@
 #include <catch2/catch.hpp>
 
 #include "bounds/random.h"
+#include "core/bulk_memory.h"
 #include "core/state_codec.h"
 #include "feed/feed_merge.h"
 
@@ -132,5 +133,56 @@ TEST_CASE("a restored model refits exactly like the original", "[series]") {
       CHECK(restored.fit().coefficients(j) == original.fit().coefficients(j));
     }
     CHECK(restored.fit().dispersion == original.fit().dispersion);
+  }
+}
+
+// A restore may place the history in memory the reader offers (the
+// checkpoint's bulk mapping, core/bulk_memory.h). A model restored there
+// with a window not yet full must grow out of that block and still refit,
+// bit for bit, like the original; and one restored without the offer alike.
+TEST_CASE("a model restored into offered memory grows out of it and refits exactly like the original", "[series]") {
+  const std::vector<Observation> records = seasonal_series();
+  SeriesSettings settings;
+  settings.model.family = glm::Family::quasipoisson;
+  settings.model.trend = true;
+  settings.model.covariates = {"rain_mm"};
+  settings.model.seasons = {Season{Seconds{7 * 86400}, 2}};
+  settings.model.window = Window{std::nullopt, 70};
+  std::vector<Observation> with_rain = records;
+  for (std::size_t i = 0; i < with_rain.size(); ++i)
+    with_rain[i].covariates = {{"rain_mm", static_cast<double>((i * 7) % 11)}};
+  SeriesModel original("s", settings);
+  for (std::size_t i = 0; i < 40; ++i) original.learn(with_rain[i]);  // 40 of a 70-record window
+  for (StateLayout layout : {StateLayout::text, StateLayout::binary}) {
+    StateWriter w(layout);
+    original.save_state(w);
+    StateReader r(w.text(), layout);
+    r.offer_memory(BulkMemory::create(1 << 20));
+    REQUIRE(r.memory() != nullptr);
+    SeriesModel restored("s", settings);
+    restored.load_state(r);
+    REQUIRE_FALSE(r.failed());
+    CHECK(r.memory()->used() >= 40 * (32 + 8));  // records and covariates went into the offered block
+    SeriesModel copy_of_original("s", settings);
+    StateReader again(w.text(), layout);
+    copy_of_original.load_state(again);  // without an offer: the heap
+    REQUIRE_FALSE(again.failed());
+    SeriesModel reference("s", settings);
+    for (std::size_t i = 0; i < 40; ++i) reference.learn(with_rain[i]);
+    for (std::size_t i = 40; i < with_rain.size(); ++i) {
+      reference.learn(with_rain[i]);
+      restored.learn(with_rain[i]);
+      copy_of_original.learn(with_rain[i]);
+    }
+    REQUIRE(reference.has_fit());
+    CHECK(restored.history_size() == 70);
+    REQUIRE(restored.fits_done() == reference.fits_done());
+    REQUIRE(copy_of_original.fits_done() == reference.fits_done());
+    for (Eigen::Index j = 0; j < reference.fit().coefficients.size(); ++j) {
+      CHECK(restored.fit().coefficients(j) == reference.fit().coefficients(j));
+      CHECK(copy_of_original.fit().coefficients(j) == reference.fit().coefficients(j));
+    }
+    CHECK(restored.fit().dispersion == reference.fit().dispersion);
+    CHECK(restored.first_time_in_window() == reference.first_time_in_window());
   }
 }
