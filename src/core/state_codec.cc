@@ -83,6 +83,9 @@ void StateWriter::str(std::string_view s) {
 
 std::uint64_t StateReader::leb128() {
   if (failed()) return 0;
+  // Most values of a history (flags, counts) fit in one byte.
+  if (pos_ < text_.size() && static_cast<std::uint8_t>(text_[pos_]) < 0x80)
+    return static_cast<std::uint8_t>(text_[pos_++]);
   std::uint64_t v = 0;
   for (int shift = 0; shift < 64; shift += 7) {
     if (pos_ == text_.size()) {
