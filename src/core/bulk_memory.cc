@@ -38,8 +38,9 @@ void* BulkMemory::take(std::size_t bytes) {
   if (start > size_ || bytes > size_ - start) return nullptr;
   const std::size_t end = start + bytes;
   if (end > populated_) {
-    // Prefault the next chunks in one call rather than page by page on first touch.
-    const std::size_t to = std::min(size_, round_up(end, kChunk));
+    // Prefault in one call rather than page by page on first touch: a
+    // chunk ahead for small pieces, just the piece for a large one.
+    const std::size_t to = std::min(size_, std::max(round_up(end, kHugePage), populated_ + kChunk));
     ::madvise(base_ + populated_, to - populated_, MADV_POPULATE_WRITE);  // a request; refused is fine
     populated_ = to;
   }
@@ -48,12 +49,14 @@ void* BulkMemory::take(std::size_t bytes) {
 }
 
 void BulkMemory::trim() {
-  const std::size_t keep = std::min(size_, round_up(std::max(used_, populated_), kHugePage));
+  // Prefaulted pages past the last piece go too.
+  const std::size_t keep = std::min(size_, round_up(used_, kHugePage));
   if (keep < size_) {
     ::munmap(base_ + keep, size_ - keep);
     size_ = keep;
   }
   used_ = size_;  // nothing more to hand out
+  populated_ = std::min(populated_, size_);
 }
 
 }  // namespace tallyd

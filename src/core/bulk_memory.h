@@ -18,8 +18,9 @@
 //   nullptr once the mapping cannot hold them. Pieces are never freed one
 //   by one; all go when the BulkMemory is destroyed (hold a shared_ptr for as
 //   long as any piece is used).
-// - trim() gives back the address space past what was handed out (rounded
-//   up to the prefault chunk), after which take() returns nullptr.
+// - trim() gives back the memory and address space past what was handed
+//   out (rounded up to a 2 MiB huge page), after which take() returns
+//   nullptr.
 // - used() is the bytes handed out so far, alignment included.
 // Not thread-safe.
 #pragma once
@@ -40,7 +41,7 @@ class BulkMemory {
   void trim();
   std::size_t used() const { return used_; }
 
-  // Bytes prefaulted at a time (a multiple of the 2 MiB huge page).
+  // Bytes prefaulted at least at a time (a multiple of the 2 MiB huge page).
   static constexpr std::size_t kChunk = std::size_t{32} << 20;
 
  private:

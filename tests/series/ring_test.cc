@@ -94,7 +94,7 @@ TEST_CASE("a ring grows by doubling up to its row limit, then doubles past it", 
   CHECK(ring.row(0)[0] == 1000 - 156);
 }
 
-TEST_CASE("a reserved ring fills without another block; clear keeps the block", "[series][ring]") {
+TEST_CASE("a reserved ring fills without another block, and clear keeps the block", "[series][ring]") {
   Ring<std::int64_t> ring(1, 50);
   ring.reserve(300);  // past the row limit: reserve is exact
   CHECK(ring.capacity() == 300);
