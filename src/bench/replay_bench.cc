@@ -12,7 +12,9 @@
 // low) differ from the first row of that method (screen off), which is the
 // baseline of the ratio. With --cadences, the quadrature feed is also run at
 // each refit cadence (with model.refit_on_doubt off, on, or both) and
-// compared record by record with refit every record.
+// compared record by record with refit every record. With --refit-every R > 1
+// and --doubt on, the first rows refit on doubt too (to profile one setting
+// alone).
 // With --workers T > 1 the series are sharded over T threads
 // (engine/sharded_engine.h), fed in batches of one day of records (or of B
 // records with --batch B); the row for T = 1 (plain Engine, one record at a
@@ -254,7 +256,8 @@ int main(int argc, char** argv) {
     if (a.screen != "off") screens.push_back(true);
     std::optional<Row> base;
     for (bool screen : screens) {
-      const SettingsTable settings = bench_settings(a, method, screen, a.refit_every);
+      const SettingsTable settings =
+          bench_settings(a, method, screen, a.refit_every, a.refit_every > 1 && a.doubt == "on");
       const Row one = run_single(feed, settings);
       if (!base) base = one;
       print_row(name.c_str(), screen ? "on" : "off", a.refit_every, 1, feed.size(), one, *base);

@@ -85,3 +85,34 @@ TEST_CASE("screen: the Chernoff bound lies above the exact binomial lower tail",
   CHECK(binomial_low_tail_bound(0.01, 0.005, 1000) == 1);  // p below alpha: nothing settled
   CHECK(binomial_low_tail_bound(0.001, 0.02, 10000) < 1e-12);
 }
+
+TEST_CASE("screen: stage 2 settles records in the tails of a wide mixture, never one the full quadrature flags",
+          "[bounds][screen]") {
+  // Counts between 2 and 4 sd of a Poisson-log mixture with sd(eta*) of 0.1
+  // to 0.45 (Gauss-Hermite and grid rules): stage 1's floor is about half the
+  // central tail there. The reference is the full quadrature, itself checked
+  // against Boost.Math's adaptive Gauss-Kronrod in quadrature_test.cc.
+  const double alpha = 0.001;
+  int second = 0, checked = 0;
+  for (const CountNoise& noise : {CountNoise{Family::poisson, Link::log, 1, 0},
+                                  CountNoise{Family::quasipoisson, Link::log, 1.8, 0}}) {
+    for (double mean : {20.0, 80.0, 300.0}) {
+      for (double sd : {0.1, 0.2, 0.45}) {
+        const Predictor p{std::log(mean), sd * sd};
+        const double spread = std::sqrt(mean * noise.dispersion + sd * sd * mean * mean);
+        for (double z = -4; z <= 4.01; z += 0.25) {
+          const auto y = static_cast<std::int64_t>(std::max(0.0, std::round(mean + z * spread)));
+          const ScreenOutcome s = screen_record(p, noise, y, 48, alpha, 0);
+          const Bounds full = quadrature_bounds(p, noise, y, 48, alpha);
+          ++checked;
+          CHECK(s.p_high_floor <= full.p_high * (1 + 1e-9));
+          CHECK(s.p_low_floor <= full.p_low * (1 + 1e-9));
+          if (s.settled) CHECK_FALSE((full.p_high <= alpha || full.p_low <= alpha));
+          if (s.settled && s.stage == 2) ++second;
+        }
+      }
+    }
+  }
+  CHECK(checked == 594);
+  CHECK(second > 20);  // stage 2 did settle records stage 1 could not
+}
