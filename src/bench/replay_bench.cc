@@ -5,7 +5,7 @@
 //   build/replay_bench [--series N] [--days D] [--window W] [--draws K] [--refit-every R]
 //                      [--workers T] [--batch B] [--method quadrature|simulate|both] [--screen off|on|both]
 //                      [--cadences 2,4,7] [--doubt off|on|both] [--annual-harmonics H]
-//                      [--feed-out FILE.csv]
+//                      [--cadence-from N] [--feed-out FILE.csv]
 //
 // Prints one row per method and screen setting: records, seconds,
 // records/s, judged, alerts, and how many records' verdicts (no alert, high,
@@ -50,6 +50,7 @@ struct Args {
   std::size_t window = 365;
   int draws = 10000;
   std::size_t refit_every = 1;
+  std::size_t cadence_from = 0;  // model.cadence_from of every row
   int workers = 1;
   int batch = 0;  // records per sharded batch; 0: one day (--series records)
   int annual_harmonics = 1;  // coefficients: intercept, trend, 2 per annual harmonic, 2 weekly
@@ -113,6 +114,7 @@ Args parse_args(int argc, char** argv) {
     else if (k == "--workers") a.workers = static_cast<int>(v);
     else if (k == "--batch") a.batch = static_cast<int>(v);
     else if (k == "--refit-every") a.refit_every = static_cast<std::size_t>(v);
+    else if (k == "--cadence-from") a.cadence_from = static_cast<std::size_t>(v);
     else if (k == "--annual-harmonics") a.annual_harmonics = static_cast<int>(v);
     else {
       std::fprintf(stderr, "unknown option %s\n", argv[i]);
@@ -173,6 +175,7 @@ SettingsTable bench_settings(const Args& a, bounds::Method method, bool screen, 
   m.min_history = 30;
   m.refit_every = refit_every;
   m.refit_on_doubt = doubt;
+  m.cadence_from = a.cadence_from;
   t.defaults.alert.method = method;
   t.defaults.alert.draws = a.draws;
   t.defaults.alert.alpha = 0.001;

@@ -43,6 +43,8 @@ struct ModelSpec {
                                          // p-values under the older fit are not both above
                                          // kDoubtFactor * alpha (engine/engine.h), so only records
                                          // far inside their bounds are judged by a fit a few records old
+  std::size_t cadence_from = 0;          // with refit_every > 1: refit after every record while the window
+                                         // holds fewer records than this (a young series' fit moves fast)
   // Outbreak-resistant training (docs/detection.md). After each fit, records
   // whose standardized Anscombe residual exceeds reweight_threshold get
   // prior weight proportional to residual^-2 and the model is refitted once
