@@ -5,7 +5,7 @@
 //   build/replay_bench [--series N] [--days D] [--window W] [--draws K] [--refit-every R]
 //                      [--workers T] [--batch B] [--method quadrature|simulate|both] [--screen off|on|both]
 //                      [--cadences 2,4,7] [--doubt off|on|both] [--annual-harmonics H]
-//                      [--cadence-from N] [--feed-out FILE.csv]
+//                      [--cadence-from N] [--doubt-factor F] [--feed-out FILE.csv]
 //
 // Prints one row per method and screen setting: records, seconds,
 // records/s, judged, alerts, and how many records' verdicts (no alert, high,
@@ -51,6 +51,7 @@ struct Args {
   int draws = 10000;
   std::size_t refit_every = 1;
   std::size_t cadence_from = 0;  // model.cadence_from of every row
+  double doubt_factor = 10;      // model.doubt_factor of every row
   int workers = 1;
   int batch = 0;  // records per sharded batch; 0: one day (--series records)
   int annual_harmonics = 1;  // coefficients: intercept, trend, 2 per annual harmonic, 2 weekly
@@ -115,6 +116,7 @@ Args parse_args(int argc, char** argv) {
     else if (k == "--batch") a.batch = static_cast<int>(v);
     else if (k == "--refit-every") a.refit_every = static_cast<std::size_t>(v);
     else if (k == "--cadence-from") a.cadence_from = static_cast<std::size_t>(v);
+    else if (k == "--doubt-factor") a.doubt_factor = static_cast<double>(v);
     else if (k == "--annual-harmonics") a.annual_harmonics = static_cast<int>(v);
     else {
       std::fprintf(stderr, "unknown option %s\n", argv[i]);
@@ -176,6 +178,7 @@ SettingsTable bench_settings(const Args& a, bounds::Method method, bool screen, 
   m.refit_every = refit_every;
   m.refit_on_doubt = doubt;
   m.cadence_from = a.cadence_from;
+  m.doubt_factor = a.doubt_factor;
   t.defaults.alert.method = method;
   t.defaults.alert.draws = a.draws;
   t.defaults.alert.alpha = 0.001;
