@@ -192,6 +192,7 @@ struct Row {
   std::vector<signed char> verdicts;  // per record: 0 none, 1 high, -1 low (bound alerts), 2 not judged
   double busy_seconds = 0;     // sharded: seconds the workers spent judging, summed
   double offered_seconds = 0;  // sharded: seconds in batches times workers
+  std::uint64_t fits = 0;      // single: GLM fits done (a refit with the resistant second fit counts two)
 };
 
 Row run_single(const std::vector<Observation>& feed, const SettingsTable& settings) {
@@ -205,6 +206,7 @@ Row run_single(const std::vector<Observation>& feed, const SettingsTable& settin
   }
   row.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
   row.counters = engine.counters();
+  for (const auto& [id, model] : engine.series()) row.fits += model->fits_done();
   return row;
 }
 
@@ -288,11 +290,13 @@ int main(int argc, char** argv) {
         const SettingsTable settings = bench_settings(a, method, screens.back(), every, doubt);
         const Row r = run_single(feed, settings);
         print_row(name.c_str(), screens.back() ? "on" : "off", every, 1, feed.size(), r, *base);
-        std::printf("  refit every %zu%s: %zu of %llu judged records (%.4f%%) differ from refit every %zu\n", every,
-                    doubt ? " on doubt" : "", differing(r, *base),
+        std::printf("  refit every %zu%s: %zu of %llu judged records (%.4f%%) differ from refit every %zu;"
+                    " %.3f fits per record (%.3f there)\n",
+                    every, doubt ? " on doubt" : "", differing(r, *base),
                     static_cast<unsigned long long>(base->counters.judged),
                     100.0 * static_cast<double>(differing(r, *base)) / static_cast<double>(base->counters.judged),
-                    a.refit_every);
+                    a.refit_every, static_cast<double>(r.fits) / static_cast<double>(feed.size()),
+                    static_cast<double>(base->fits) / static_cast<double>(feed.size()));
       }
     }
   }
