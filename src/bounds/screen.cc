@@ -128,10 +128,46 @@ ScreenOutcome screen_record(const Predictor& predictor, const CountNoise& noise,
     // The draws estimate the true mixture, whose weights above and below
     // mu_c are exactly 1/2; the quadrature weights are that up to rounding,
     // so take the smaller.
-    const double high = std::min(out.p_high_floor, 0.5 * at_least(t, observed)) * (1 - kScreenMargin);
-    const double low = std::min(out.p_low_floor, 0.5 * std::min(t.cdf, 1.0)) * (1 - kScreenMargin);
-    out.settled = binomial_low_tail_bound(alpha, high, draws) <= kSimulateScreenRisk &&
-                  binomial_low_tail_bound(alpha, low, draws) <= kSimulateScreenRisk;
+    double high = std::min(out.p_high_floor, 0.5 * at_least(t, observed)) * (1 - kScreenMargin);
+    double low = std::min(out.p_low_floor, 0.5 * std::min(t.cdf, 1.0)) * (1 - kScreenMargin);
+    const auto settles = [&](double p) { return binomial_low_tail_bound(alpha, p, draws) <= kSimulateScreenRisk; };
+    out.stage = 1;
+    const double sd = std::sqrt(predictor.eta_variance);
+    if ((!settles(high) || !settles(low)) && sd > 0) {
+      // Stage 2 for the true mixture: eta* ~ N(eta_mean, sd^2) falls in
+      // [eta_mean + e_b sd, eta_mean + e_{b+1} sd) with the Gaussian
+      // probability of that band, and the tail towards `observed` is at
+      // least its value at the band's inner edge.
+      out.stage = 2;
+      double band[kScreenBands];
+      double edge[kScreenBands] = {0};
+      for (int b = 1; b < kScreenBands; ++b) edge[b] = kBandEdges[b - 1];
+      for (int b = 0; b < kScreenBands; ++b) {
+        const double outer = b + 1 < kScreenBands ? 0.5 * std::erfc(edge[b + 1] / std::sqrt(2.0)) : 0.0;
+        band[b] = 0.5 * std::erfc(edge[b] / std::sqrt(2.0)) - outer;
+      }
+      if (!settles(high)) {
+        double floor = band[0] * at_least(t, observed);
+        for (int b = 1; b < kScreenBands; ++b) {
+          const NoiseAt d = noise_at(noise, mean_from_eta(noise.link, predictor.eta_mean + edge[b] * sd));
+          floor += band[b] * at_least(tails_at(d, observed), observed);
+        }
+        if (std::isfinite(floor)) high = std::max(high, floor * (1 - kScreenMargin));
+      }
+      if (!settles(low)) {
+        double floor = band[0] * std::min(t.cdf, 1.0);
+        for (int b = 1; b < kScreenBands; ++b) {
+          const NoiseAt d = noise_at(noise, mean_from_eta(noise.link, predictor.eta_mean - edge[b] * sd));
+          floor += band[b] * std::min(tails_at(d, observed).cdf, 1.0);
+        }
+        if (std::isfinite(floor)) low = std::max(low, floor * (1 - kScreenMargin));
+      }
+    }
+    // Stage 2's floors bound the true mixture's p-values (those the draws
+    // estimate); report the larger, so a settled record's floors are above alpha.
+    out.p_high_floor = std::max(out.p_high_floor, high);
+    out.p_low_floor = std::max(out.p_low_floor, low);
+    out.settled = settles(high) && settles(low);
   }
   return out;
 }

@@ -15,7 +15,7 @@
 //
 // The weights are summed by walking the rule's nodes (mixture.h,
 // for_each_node) without building the mixture: no allocation, one exp per
-// node, one tail. Stage 2 (quadrature only), for a record stage 1 leaves
+// node, one tail. Stage 2, for a record stage 1 leaves
 // unsettled: each side's components are split into kScreenBands bands at 1
 // and 2 sd(eta*) from eta_mean, and each band's weight multiplies the tail at
 // its innermost node (whose mean is the band's nearest to mu_c), so
@@ -29,7 +29,10 @@
 // the search's sums), the full search would find the observed count within
 // the bounds: the screen never changes an alert (error bound zero).
 //
-// Simulate (stage 1 only): the draws' p-value is a binomial fraction K-draws estimate of
+// Simulate: stage 2 uses the true mixture's Gaussian band probabilities
+// (P(0 <= Z < 1), P(1 <= Z < 2), P(Z >= 2) for eta* standardised) and the
+// tails at the band edges eta_mean +- {0, 1, 2} sd(eta*), not the rule's
+// nodes. The draws' p-value is a binomial fraction K-draws estimate of
 // the true mixture's p >= floor. When floor > alpha, P(estimate <= alpha)
 // <= exp(-K KL(alpha || floor)) (Chernoff-Hoeffding; Hoeffding 1963). The
 // screen settles a side only when that bound is at most
@@ -54,9 +57,9 @@ inline constexpr int kScreenBands = 3;
 struct ScreenOutcome {
   bool settled = false;   // no alert on either side: the full evaluation is not needed
   double expected = 0;    // the quadrature mixture's E[Y] (what quadrature_bounds reports)
-  double p_high_floor = 0;  // lower bound on P(Y >= observed)
+  double p_high_floor = 0;  // lower bound on P(Y >= observed) (simulate: of the true mixture after stage 2)
   double p_low_floor = 0;   // lower bound on P(Y <= observed)
-  int stage = 0;            // quadrature: the last stage tried (1 or 2); 0 when none was
+  int stage = 0;            // the last stage tried (1 or 2); 0 when none was
 };
 
 // Preconditions as quadrature_bounds (evaluate checks them). `draws` is 0
