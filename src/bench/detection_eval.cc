@@ -22,7 +22,9 @@
 // first ones are unchanged): more null weeks pin down the thresholds of the
 // matched comparison. Configuration `resistant@1` is `resistant` with the
 // residual threshold 1 of Farrington et al. (1996); it runs only when named
-// in --configs.
+// in --configs. Likewise `plain+guard2` and `resistant+guard2`: the same with
+// model.guard_records = 2 (the two newest weeks kept out of the fit that
+// judges the next one).
 //
 // --past-outbreaks K also places K outbreaks of the scenario's kind in the
 // training years of every series (Noufaily et al. 2013 likewise put outbreaks
@@ -81,6 +83,7 @@ struct Config {
   bool shift;
   bool low_run;
   double threshold = 0;  // model.reweight_threshold; 0: --reweight-threshold's (default the model's)
+  std::size_t guard = 0;  // model.guard_records
 };
 
 struct Series {
@@ -223,6 +226,7 @@ void run(int si, const Scenario& sc, const Config& cfg, const Resistance& resist
   m.reweight_rounds = resistance.rounds;
   m.reweight_mean_correction = resistance.mean_correction;
   m.alerted_weight = cfg.alerted_weight;
+  m.guard_records = cfg.guard;
   AlertSpec& al = settings.defaults.alert;
   al.alpha = 0.001;
   al.direction = sc.kind == Scenario::silent ? Direction::low : Direction::high;
@@ -442,6 +446,8 @@ int main(int argc, char** argv) {
       {"resistant+shift", true, 1.0, true, false},
       {"resistant+low_run", true, 1.0, false, true},
       {"resistant@1", true, 1.0, false, false, 1.0},  // Farrington et al. (1996)'s threshold
+      {"plain+guard2", false, 1.0, false, false, 0, 2},
+      {"resistant+guard2", true, 1.0, false, false, 0, 2},
   };
   std::printf("family %s, %d null + %d outbreak series per scenario, seed %llu, %d past outbreaks per series in the "
               "training years, shift_error %s; 95%% intervals in brackets\n",
@@ -467,7 +473,7 @@ int main(int argc, char** argv) {
       if (!relevant) continue;
       const bool named = !wanted.empty() && wanted.find("," + std::string(cfg.name) + ",") != std::string::npos;
       if (!wanted.empty() && !named) continue;
-      if (cfg.threshold > 0 && !named) continue;  // only on request
+      if ((cfg.threshold > 0 || cfg.guard > 0) && !named) continue;  // only on request
       Tally t;
       run(si, sc, cfg, resistance, family, shift_error, data, t);
       std::printf("%-3d %-48s %-20s %-28s %-21s %-21s %6.1f\n", si, sc.name, cfg.name,
