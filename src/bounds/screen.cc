@@ -47,10 +47,13 @@ Walk walk_nodes(const Predictor& predictor, const CountNoise& noise, const Quadr
   Walk w;
   const double sd = std::sqrt(predictor.eta_variance);
   for_each_node(predictor, rule, [&](double weight, double eta) {
-    const NoiseAt d = noise_at(noise, mean_from_eta(noise.link, eta));
-    if (!d.at_zero) w.expected += weight * d.mu;
-    const bool up = centre.at_zero || (!d.at_zero && d.mu >= centre.mu);
-    const bool low = d.at_zero || (!centre.at_zero && d.mu <= centre.mu);
+    // noise_at's at_zero and mu, without the NB2 size it would also work out.
+    const double raw = mean_from_eta(noise.link, eta);
+    const bool at_zero = !(raw > kMinMean);
+    const double mu = std::min(raw, kMaxMean);
+    if (!at_zero) w.expected += weight * mu;
+    const bool up = centre.at_zero || (!at_zero && mu >= centre.mu);
+    const bool low = at_zero || (!centre.at_zero && mu <= centre.mu);
     if (up) {
       w.w_up += weight;
       int b = 0;
