@@ -5,14 +5,16 @@
 //   build/replay_bench [--series N] [--days D] [--window W] [--draws K] [--refit-every R]
 //                      [--workers T] [--batch B] [--method quadrature|simulate|both] [--screen off|on|both]
 //                      [--cadences 2,4,7] [--doubt off|on|both] [--annual-harmonics H]
-//                      [--feed-out FILE.csv]
+//                      [--cadence-from N] [--doubt-factor F] [--feed-out FILE.csv]
 //
 // Prints one row per method and screen setting: records, seconds,
 // records/s, judged, alerts, and how many records' verdicts (no alert, high,
 // low) differ from the first row of that method (screen off), which is the
 // baseline of the ratio. With --cadences, the quadrature feed is also run at
 // each refit cadence (with model.refit_on_doubt off, on, or both) and
-// compared record by record with refit every record.
+// compared record by record with refit every record. With --refit-every R > 1
+// and --doubt on, the first rows refit on doubt too (to profile one setting
+// alone).
 // With --workers T > 1 the series are sharded over T threads
 // (engine/sharded_engine.h), fed in batches of one day of records (or of B
 // records with --batch B); the row for T = 1 (plain Engine, one record at a
@@ -48,6 +50,8 @@ struct Args {
   std::size_t window = 365;
   int draws = 10000;
   std::size_t refit_every = 1;
+  std::size_t cadence_from = 0;  // model.cadence_from of every row
+  double doubt_factor = 10;      // model.doubt_factor of every row
   int workers = 1;
   int batch = 0;  // records per sharded batch; 0: one day (--series records)
   int annual_harmonics = 1;  // coefficients: intercept, trend, 2 per annual harmonic, 2 weekly
@@ -111,6 +115,8 @@ Args parse_args(int argc, char** argv) {
     else if (k == "--workers") a.workers = static_cast<int>(v);
     else if (k == "--batch") a.batch = static_cast<int>(v);
     else if (k == "--refit-every") a.refit_every = static_cast<std::size_t>(v);
+    else if (k == "--cadence-from") a.cadence_from = static_cast<std::size_t>(v);
+    else if (k == "--doubt-factor") a.doubt_factor = static_cast<double>(v);
     else if (k == "--annual-harmonics") a.annual_harmonics = static_cast<int>(v);
     else {
       std::fprintf(stderr, "unknown option %s\n", argv[i]);
@@ -171,6 +177,8 @@ SettingsTable bench_settings(const Args& a, bounds::Method method, bool screen, 
   m.min_history = 30;
   m.refit_every = refit_every;
   m.refit_on_doubt = doubt;
+  m.cadence_from = a.cadence_from;
+  m.doubt_factor = a.doubt_factor;
   t.defaults.alert.method = method;
   t.defaults.alert.draws = a.draws;
   t.defaults.alert.alpha = 0.001;
@@ -184,6 +192,7 @@ struct Row {
   std::vector<signed char> verdicts;  // per record: 0 none, 1 high, -1 low (bound alerts), 2 not judged
   double busy_seconds = 0;     // sharded: seconds the workers spent judging, summed
   double offered_seconds = 0;  // sharded: seconds in batches times workers
+  std::uint64_t fits = 0;      // single: GLM fits done (a refit with the resistant second fit counts two)
 };
 
 Row run_single(const std::vector<Observation>& feed, const SettingsTable& settings) {
@@ -197,6 +206,7 @@ Row run_single(const std::vector<Observation>& feed, const SettingsTable& settin
   }
   row.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
   row.counters = engine.counters();
+  for (const auto& [id, model] : engine.series()) row.fits += model->fits_done();
   return row;
 }
 
@@ -254,7 +264,8 @@ int main(int argc, char** argv) {
     if (a.screen != "off") screens.push_back(true);
     std::optional<Row> base;
     for (bool screen : screens) {
-      const SettingsTable settings = bench_settings(a, method, screen, a.refit_every);
+      const SettingsTable settings =
+          bench_settings(a, method, screen, a.refit_every, a.refit_every > 1 && a.doubt == "on");
       const Row one = run_single(feed, settings);
       if (!base) base = one;
       print_row(name.c_str(), screen ? "on" : "off", a.refit_every, 1, feed.size(), one, *base);
@@ -279,11 +290,13 @@ int main(int argc, char** argv) {
         const SettingsTable settings = bench_settings(a, method, screens.back(), every, doubt);
         const Row r = run_single(feed, settings);
         print_row(name.c_str(), screens.back() ? "on" : "off", every, 1, feed.size(), r, *base);
-        std::printf("  refit every %zu%s: %zu of %llu judged records (%.4f%%) differ from refit every %zu\n", every,
-                    doubt ? " on doubt" : "", differing(r, *base),
+        std::printf("  refit every %zu%s: %zu of %llu judged records (%.4f%%) differ from refit every %zu;"
+                    " %.3f fits per record (%.3f there)\n",
+                    every, doubt ? " on doubt" : "", differing(r, *base),
                     static_cast<unsigned long long>(base->counters.judged),
                     100.0 * static_cast<double>(differing(r, *base)) / static_cast<double>(base->counters.judged),
-                    a.refit_every);
+                    a.refit_every, static_cast<double>(r.fits) / static_cast<double>(feed.size()),
+                    static_cast<double>(base->fits) / static_cast<double>(feed.size()));
       }
     }
   }

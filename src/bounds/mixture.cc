@@ -6,7 +6,6 @@
 
 #include <boost/math/special_functions/erf.hpp>
 
-#include "bounds/gauss_hermite.h"
 
 namespace tallyd::bounds {
 
@@ -78,41 +77,7 @@ void build_mixture(const Predictor& predictor, const CountNoise& noise, const Qu
     m.poisson = d.poisson;
     m.expected += weight * d.mu;
   };
-  if (predictor.eta_variance == 0) {
-    add(1, predictor.eta_mean);
-    return;
-  }
-  if (rule.grid) {
-    // Trapezoid rule in eta over +-kGridHalfWidth sd. For an integrand
-    // that is a Gaussian weight times a function analytic in a strip (the
-    // count pmfs and CDFs as functions of eta are), the trapezoid rule
-    // converges geometrically in 1/step (the standard result for periodic
-    // or rapidly decaying analytic integrands); with kGridStepsPerWidth
-    // steps per narrower width the error is far below double rounding.
-    const double sd = std::sqrt(predictor.eta_variance);
-    const int n = rule.grid_nodes;
-    const double step = 2 * kGridHalfWidth * sd / (n - 1);
-    std::vector<double> weight(static_cast<std::size_t>(n));
-    double total = 0;
-    for (int i = 0; i < n; ++i) {
-      const double x = -kGridHalfWidth + step / sd * i;  // standardised
-      weight[static_cast<std::size_t>(i)] = std::exp(-0.5 * x * x);
-      total += weight[static_cast<std::size_t>(i)];
-    }
-    for (int i = 0; i < n; ++i) {
-      add(weight[static_cast<std::size_t>(i)] / total, predictor.eta_mean - kGridHalfWidth * sd + step * i);
-    }
-    return;
-  }
-  const HermiteRule& hermite = gauss_hermite(rule.hermite_nodes);
-  // Normalising by the computed sum (sqrt(pi) up to rounding) makes the
-  // mixture CDF reach exactly 1 as far as the sums allow.
-  double total = 0;
-  for (const double x : hermite.weights) total += x;
-  const double scale = std::sqrt(2 * predictor.eta_variance);
-  for (std::size_t i = 0; i < hermite.nodes.size(); ++i) {
-    add(hermite.weights[i] / total, predictor.eta_mean + scale * hermite.nodes[i]);
-  }
+  for_each_node(predictor, rule, add);
 }
 
 // P(Y = k) of the mixture, from the component pmfs at k.

@@ -11,10 +11,12 @@
 // screen relies on that. Pure functions; never throw.
 #pragma once
 
+#include <cmath>
 #include <cstdint>
 #include <vector>
 
 #include "bounds/count_noise.h"
+#include "bounds/gauss_hermite.h"
 #include "bounds/predictive.h"
 
 namespace tallyd::bounds {
@@ -64,6 +66,13 @@ struct Mixture {
 // d eta / d mu at mu > 0.
 double eta_per_mu(glm::Link link, double mu);
 
+// Calls node(weight, eta) for every node of the rule, in ascending eta,
+// with the normalised weights the mixture uses. No allocation for the
+// Gauss-Hermite rule (the screen walks the nodes without building the
+// mixture); the grid rule keeps its weights in one vector.
+template <class Node>
+void for_each_node(const Predictor& predictor, const QuadratureRule& rule, Node&& node);
+
 // Fills `m` (which must be default-constructed) with the rule's components.
 void build_mixture(const Predictor& predictor, const CountNoise& noise, const QuadratureRule& rule, Mixture& m);
 
@@ -81,5 +90,44 @@ struct Probe {
 // The mixture's CDF and survival at k (one Boost.Math tail per component);
 // leaves the component pmfs at k in `pmf`.
 Probe probe(const Mixture& m, std::int64_t k, PerNode& pmf);
+
+template <class Node>
+void for_each_node(const Predictor& predictor, const QuadratureRule& rule, Node&& node) {
+  if (predictor.eta_variance == 0) {
+    node(1.0, predictor.eta_mean);
+    return;
+  }
+  if (rule.grid) {
+    // Trapezoid rule in eta over +-kGridHalfWidth sd. For an integrand
+    // that is a Gaussian weight times a function analytic in a strip (the
+    // count pmfs and CDFs as functions of eta are), the trapezoid rule
+    // converges geometrically in 1/step (the standard result for periodic
+    // or rapidly decaying analytic integrands); with kGridStepsPerWidth
+    // steps per narrower width the error is far below double rounding.
+    const double sd = std::sqrt(predictor.eta_variance);
+    const int n = rule.grid_nodes;
+    const double step = 2 * kGridHalfWidth * sd / (n - 1);
+    std::vector<double> weight(static_cast<std::size_t>(n));
+    double total = 0;
+    for (int i = 0; i < n; ++i) {
+      const double x = -kGridHalfWidth + step / sd * i;  // standardised
+      weight[static_cast<std::size_t>(i)] = std::exp(-0.5 * x * x);
+      total += weight[static_cast<std::size_t>(i)];
+    }
+    for (int i = 0; i < n; ++i) {
+      node(weight[static_cast<std::size_t>(i)] / total, predictor.eta_mean - kGridHalfWidth * sd + step * i);
+    }
+    return;
+  }
+  const HermiteRule& hermite = gauss_hermite(rule.hermite_nodes);
+  // Normalising by the computed sum (sqrt(pi) up to rounding) makes the
+  // mixture CDF reach exactly 1 as far as the sums allow.
+  double total = 0;
+  for (const double x : hermite.weights) total += x;
+  const double scale = std::sqrt(2 * predictor.eta_variance);
+  for (std::size_t i = 0; i < hermite.nodes.size(); ++i) {
+    node(hermite.weights[i] / total, predictor.eta_mean + scale * hermite.nodes[i]);
+  }
+}
 
 }  // namespace tallyd::bounds

@@ -16,41 +16,161 @@ double binomial_low_tail_bound(double alpha, double p, int draws) {
   return std::exp(-static_cast<double>(draws) * std::max(kl, 0.0));
 }
 
+namespace {
+
+// Stage 2 of the quadrature screen splits each side's components into bands
+// at these distances from eta_mean, in sd(eta*).
+constexpr double kBandEdges[kScreenBands - 1] = {1.0, 2.0};
+
+// One walk over the rule's nodes: what the screen needs of the mixture,
+// summed in the order build_mixture sums it (so `expected`, W_up and W_low
+// are bit for bit those of the built mixture: the components pooled at zero
+// have the smallest eta, so they come first in both sums).
+struct Walk {
+  double expected = 0;
+  double w_up = 0;   // components with mu >= mu_c (all, when mu_c is at zero)
+  double w_low = 0;  // components with mu <= mu_c, those at zero included
+  // Stage 2: band b >= 1 of the high side holds the components from the
+  // first node at or beyond eta_mean + kBandEdges[b - 1] sd (its
+  // representative, the band's smallest mean) up to the next edge; band 0
+  // the rest of W_up. The low side mirrors it below eta_mean, each band's
+  // representative being its largest mean.
+  double high_band[kScreenBands] = {};
+  double low_band[kScreenBands] = {};
+  double high_rep[kScreenBands] = {};  // eta of band b's representative (b >= 1)
+  double low_rep[kScreenBands] = {};
+  bool high_seen[kScreenBands] = {};
+  bool low_seen[kScreenBands] = {};
+};
+
+Walk walk_nodes(const Predictor& predictor, const CountNoise& noise, const QuadratureRule& rule, const NoiseAt& centre) {
+  Walk w;
+  const double sd = std::sqrt(predictor.eta_variance);
+  for_each_node(predictor, rule, [&](double weight, double eta) {
+    // noise_at's at_zero and mu, without the NB2 size it would also work out.
+    const double raw = mean_from_eta(noise.link, eta);
+    const bool at_zero = !(raw > kMinMean);
+    const double mu = std::min(raw, kMaxMean);
+    if (!at_zero) w.expected += weight * mu;
+    const bool up = centre.at_zero || (!at_zero && mu >= centre.mu);
+    const bool low = at_zero || (!centre.at_zero && mu <= centre.mu);
+    if (up) {
+      w.w_up += weight;
+      int b = 0;
+      while (sd > 0 && b + 1 < kScreenBands && eta >= predictor.eta_mean + kBandEdges[b] * sd) ++b;
+      if (b > 0 && !w.high_seen[b]) {
+        w.high_seen[b] = true;
+        w.high_rep[b] = eta;
+      }
+      w.high_band[b] += weight;
+    }
+    if (low) {
+      w.w_low += weight;
+      int b = 0;
+      while (sd > 0 && b + 1 < kScreenBands && eta <= predictor.eta_mean - kBandEdges[b] * sd) ++b;
+      if (b > 0) {  // ascending eta: the last node seen in the band is its largest
+        w.low_seen[b] = true;
+        w.low_rep[b] = eta;
+      }
+      w.low_band[b] += weight;
+    }
+  });
+  return w;
+}
+
+// P(Y >= k) from a component's tails.
+double at_least(const Tails& t, std::int64_t k) { return k == 0 ? 1.0 : std::min(t.sf + t.pmf, 1.0); }
+
+}  // namespace
+
 ScreenOutcome screen_record(const Predictor& predictor, const CountNoise& noise, std::int64_t observed,
                             int nodes, double alpha, int draws) {
   ScreenOutcome out;
-  // The same mixture quadrature_bounds builds, so `expected` is identical
-  // to what it reports and the weights below are those it sums over.
-  Mixture m;
-  build_mixture(predictor, noise, choose_rule(predictor, noise, nodes, alpha), m);
-  out.expected = m.expected;
+  const QuadratureRule rule = choose_rule(predictor, noise, nodes, alpha);
+  const NoiseAt centre = noise_at(noise, mean_from_eta(noise.link, predictor.eta_mean));
+  const Walk w = walk_nodes(predictor, noise, rule, centre);
+  out.expected = w.expected;
   if (observed < 0) return out;  // p_low = 0: leave it to the full evaluation
 
-  const NoiseAt centre = noise_at(noise, mean_from_eta(noise.link, predictor.eta_mean));
-  double w_up = 0;
-  double w_low = m.w0;  // components at zero have mu = 0 <= mu_c
-  if (centre.at_zero) w_up = m.w0;  // mu_c = 0 too: every component is >= it
-  for (std::size_t i = 0; i < static_cast<std::size_t>(m.n); ++i) {
-    if (centre.at_zero || m.mu[i] >= centre.mu) w_up += m.w[i];
-    if (!centre.at_zero && m.mu[i] <= centre.mu) w_low += m.w[i];
-  }
   const Tails t = tails_at(centre, observed);
-  const double at_least = observed == 0 ? 1.0 : t.sf + t.pmf;
-  out.p_high_floor = w_up * std::min(at_least, 1.0);
-  out.p_low_floor = w_low * std::min(t.cdf, 1.0);
+  out.p_high_floor = w.w_up * at_least(t, observed);
+  out.p_low_floor = w.w_low * std::min(t.cdf, 1.0);
   if (!std::isfinite(out.p_high_floor) || !std::isfinite(out.p_low_floor)) return out;
 
   if (draws <= 0) {
     const double needed = alpha * (1 + kScreenMargin);
+    out.stage = 1;
+    out.settled = out.p_high_floor > needed && out.p_low_floor > needed;
+    if (out.settled) return out;
+    // Stage 2: one more tail per band on each side still short of alpha.
+    // Every component of a band has a mean on the far side of its
+    // representative's, so its tail towards `observed` is at least the
+    // representative's (the same monotonicity as above); the bands
+    // partition W_up (W_low), so the sum is a tighter floor.
+    out.stage = 2;
+    if (!(out.p_high_floor > needed)) {
+      double floor = w.high_band[0] * at_least(t, observed);
+      for (int b = 1; b < kScreenBands; ++b) {
+        if (!w.high_seen[b]) continue;
+        const NoiseAt d = noise_at(noise, mean_from_eta(noise.link, w.high_rep[b]));
+        floor += w.high_band[b] * at_least(tails_at(d, observed), observed);
+      }
+      if (std::isfinite(floor)) out.p_high_floor = std::max(out.p_high_floor, floor);
+    }
+    if (!(out.p_low_floor > needed)) {
+      double floor = w.low_band[0] * std::min(t.cdf, 1.0);
+      for (int b = 1; b < kScreenBands; ++b) {
+        if (!w.low_seen[b]) continue;
+        const NoiseAt d = noise_at(noise, mean_from_eta(noise.link, w.low_rep[b]));
+        floor += w.low_band[b] * std::min(tails_at(d, observed).cdf, 1.0);
+      }
+      if (std::isfinite(floor)) out.p_low_floor = std::max(out.p_low_floor, floor);
+    }
     out.settled = out.p_high_floor > needed && out.p_low_floor > needed;
   } else {
     // The draws estimate the true mixture, whose weights above and below
     // mu_c are exactly 1/2; the quadrature weights are that up to rounding,
     // so take the smaller.
-    const double high = std::min(out.p_high_floor, 0.5 * std::min(at_least, 1.0)) * (1 - kScreenMargin);
-    const double low = std::min(out.p_low_floor, 0.5 * std::min(t.cdf, 1.0)) * (1 - kScreenMargin);
-    out.settled = binomial_low_tail_bound(alpha, high, draws) <= kSimulateScreenRisk &&
-                  binomial_low_tail_bound(alpha, low, draws) <= kSimulateScreenRisk;
+    double high = std::min(out.p_high_floor, 0.5 * at_least(t, observed)) * (1 - kScreenMargin);
+    double low = std::min(out.p_low_floor, 0.5 * std::min(t.cdf, 1.0)) * (1 - kScreenMargin);
+    const auto settles = [&](double p) { return binomial_low_tail_bound(alpha, p, draws) <= kSimulateScreenRisk; };
+    out.stage = 1;
+    const double sd = std::sqrt(predictor.eta_variance);
+    if ((!settles(high) || !settles(low)) && sd > 0) {
+      // Stage 2 for the true mixture: eta* ~ N(eta_mean, sd^2) falls in
+      // [eta_mean + e_b sd, eta_mean + e_{b+1} sd) with the Gaussian
+      // probability of that band, and the tail towards `observed` is at
+      // least its value at the band's inner edge.
+      out.stage = 2;
+      double band[kScreenBands];
+      double edge[kScreenBands] = {0};
+      for (int b = 1; b < kScreenBands; ++b) edge[b] = kBandEdges[b - 1];
+      for (int b = 0; b < kScreenBands; ++b) {
+        const double outer = b + 1 < kScreenBands ? 0.5 * std::erfc(edge[b + 1] / std::sqrt(2.0)) : 0.0;
+        band[b] = 0.5 * std::erfc(edge[b] / std::sqrt(2.0)) - outer;
+      }
+      if (!settles(high)) {
+        double floor = band[0] * at_least(t, observed);
+        for (int b = 1; b < kScreenBands; ++b) {
+          const NoiseAt d = noise_at(noise, mean_from_eta(noise.link, predictor.eta_mean + edge[b] * sd));
+          floor += band[b] * at_least(tails_at(d, observed), observed);
+        }
+        if (std::isfinite(floor)) high = std::max(high, floor * (1 - kScreenMargin));
+      }
+      if (!settles(low)) {
+        double floor = band[0] * std::min(t.cdf, 1.0);
+        for (int b = 1; b < kScreenBands; ++b) {
+          const NoiseAt d = noise_at(noise, mean_from_eta(noise.link, predictor.eta_mean - edge[b] * sd));
+          floor += band[b] * std::min(tails_at(d, observed).cdf, 1.0);
+        }
+        if (std::isfinite(floor)) low = std::max(low, floor * (1 - kScreenMargin));
+      }
+    }
+    // Stage 2's floors bound the true mixture's p-values (those the draws
+    // estimate); report the larger, so a settled record's floors are above alpha.
+    out.p_high_floor = std::max(out.p_high_floor, high);
+    out.p_low_floor = std::max(out.p_low_floor, low);
+    out.settled = settles(high) && settles(low);
   }
   return out;
 }

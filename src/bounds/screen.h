@@ -13,12 +13,26 @@
 // eta_mean, so W_up and W_low are at least about 1/2 (1 with one node).
 // The same inequalities hold for the true mixture with weight 1/2 each.
 //
+// The weights are summed by walking the rule's nodes (mixture.h,
+// for_each_node) without building the mixture: no allocation, one exp per
+// node, one tail. Stage 2, for a record stage 1 leaves
+// unsettled: each side's components are split into kScreenBands bands at 1
+// and 2 sd(eta*) from eta_mean, and each band's weight multiplies the tail at
+// its innermost node (whose mean is the band's nearest to mu_c), so
+//   P(Y >= y) >= sum_b W_b * P(Y >= y | mu_b)  (likewise below),
+// by the same monotonicity; at most two more tails per side. Records in a
+// tail of a wide predictive distribution, which stage 1 sends to the full
+// search at about twice alpha, mostly settle here.
+//
 // Quadrature: when both floors exceed alpha by the margin kScreenMargin
 // (which covers the ~1e-12 relative error of the Boost.Math tails and of
 // the search's sums), the full search would find the observed count within
 // the bounds: the screen never changes an alert (error bound zero).
 //
-// Simulate: the draws' p-value is a binomial fraction K-draws estimate of
+// Simulate: stage 2 uses the true mixture's Gaussian band probabilities
+// (P(0 <= Z < 1), P(1 <= Z < 2), P(Z >= 2) for eta* standardised) and the
+// tails at the band edges eta_mean +- {0, 1, 2} sd(eta*), not the rule's
+// nodes. The draws' p-value is a binomial fraction K-draws estimate of
 // the true mixture's p >= floor. When floor > alpha, P(estimate <= alpha)
 // <= exp(-K KL(alpha || floor)) (Chernoff-Hoeffding; Hoeffding 1963). The
 // screen settles a side only when that bound is at most
@@ -37,12 +51,15 @@ inline constexpr double kScreenMargin = 1e-6;
 // Largest probability, per side and record, that a simulate record the
 // screen settles would have been flagged by its draws.
 inline constexpr double kSimulateScreenRisk = 1e-12;
+// Bands per side in stage 2 (the centre band and two outer ones).
+inline constexpr int kScreenBands = 3;
 
 struct ScreenOutcome {
   bool settled = false;   // no alert on either side: the full evaluation is not needed
   double expected = 0;    // the quadrature mixture's E[Y] (what quadrature_bounds reports)
-  double p_high_floor = 0;  // lower bound on P(Y >= observed)
+  double p_high_floor = 0;  // lower bound on P(Y >= observed) (simulate: of the true mixture after stage 2)
   double p_low_floor = 0;   // lower bound on P(Y <= observed)
+  int stage = 0;            // the last stage tried (1 or 2); 0 when none was
 };
 
 // Preconditions as quadrature_bounds (evaluate checks them). `draws` is 0

@@ -52,7 +52,11 @@ class Reader {
   void read_model(const toml::table& t, std::string_view prefix, ModelSpec& m) {
     check_keys(t, prefix, {"family", "link", "trend", "covariates", "seasons", "window", "min_history", "refit_every", "refit_on_doubt",
                            "reweight", "reweight_threshold", "reweight_rounds", "reweight_mean_correction", "alerted_weight",
-                           "guard_records"});
+                           "guard_records", "cadence_from", "doubt_factor"});
+    if (auto* v = get<toml::value<int64_t>>(t, "cadence_from", prefix, "an integer")) {
+      if (v->get() < 0 || v->get() > 1000000) fail(*v, join(prefix, "cadence_from"), "must be between 0 and 1000000");
+      else m.cadence_from = static_cast<std::size_t>(v->get());
+    }
     if (auto* v = get<toml::value<int64_t>>(t, "guard_records", prefix, "an integer")) {
       if (v->get() < 0 || v->get() > 1000) fail(*v, join(prefix, "guard_records"), "must be between 0 and 1000");
       else m.guard_records = static_cast<std::size_t>(v->get());
@@ -73,6 +77,11 @@ class Reader {
       std::optional<double> v = n->value<double>();
       if (!v || !(*v >= 0 && *v <= 1)) fail(*n, join(prefix, "alerted_weight"), "must be a number between 0 and 1");
       else m.alerted_weight = *v;
+    }
+    if (const toml::node* n = t.get("doubt_factor")) {
+      std::optional<double> v = n->value<double>();
+      if (!v || !(*v >= 1 && *v <= 1e6)) fail(*n, join(prefix, "doubt_factor"), "must be a number between 1 and 1000000");
+      else m.doubt_factor = *v;
     }
     if (auto* v = get<toml::value<std::string>>(t, "family", prefix, "a string")) {
       if (auto f = glm::parse_family(v->get())) m.family = *f;

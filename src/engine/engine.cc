@@ -106,7 +106,7 @@ IngestResult Engine::ingest(const Observation& obs) {
       // only for a record far inside its bounds; otherwise catch up first,
       // so every record near alpha is judged by a fit of all earlier records.
       const bounds::Bounds& b = r.prediction->bounds;
-      const double clear = kDoubtFactor * s.alert.alpha;
+      const double clear = s.model.doubt_factor * s.alert.alpha;
       if (!(b.p_high > clear && b.p_low > clear)) {
         model.refit();
         r.prediction = model.predict(obs, screen);

@@ -31,8 +31,7 @@ class StateReader;
 
 // model.refit_on_doubt: a record judged by a fit older than its newest
 // records is judged again after a refit unless both its p-values exceed
-// this multiple of alpha (or the screen's lower bounds on them do).
-inline constexpr double kDoubtFactor = 10;
+// model.doubt_factor times alpha (or the screen's lower bounds on them do).
 
 struct EngineLimits {
   std::size_t max_series = 100000;  // new series ids beyond this are rejected (too_many_series)

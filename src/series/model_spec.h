@@ -41,8 +41,11 @@ struct ModelSpec {
   std::size_t refit_every = 1;           // refit after this many new records (1 = every record)
   bool refit_on_doubt = false;           // with refit_every > 1: refit before judging a record whose
                                          // p-values under the older fit are not both above
-                                         // kDoubtFactor * alpha (engine/engine.h), so only records
+                                         // doubt_factor * alpha (engine/engine.h), so only records
                                          // far inside their bounds are judged by a fit a few records old
+  double doubt_factor = 10;              // refit_on_doubt's margin over alpha, 1-1e6 (larger: more refits)
+  std::size_t cadence_from = 0;          // with refit_every > 1: refit after every record while the window
+                                         // holds fewer records than this (a young series' fit moves fast)
   // Outbreak-resistant training (docs/detection.md). After each fit, records
   // whose standardized Anscombe residual exceeds reweight_threshold get
   // prior weight proportional to residual^-2 and the model is refitted once

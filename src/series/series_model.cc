@@ -126,7 +126,8 @@ void SeriesModel::learn(const Observation& obs, double weight) {
   trim_window(obs.time);
   ++since_refit_;
   if (records_.size() >= min_history() + settings_->model.guard_records &&
-      (since_refit_ >= settings_->model.refit_every || !has_fit_)) {
+      (since_refit_ >= settings_->model.refit_every || !has_fit_ ||
+       records_.size() < settings_->model.cadence_from)) {
     refit();
   }
 }

@@ -8,6 +8,7 @@
 #include <catch2/catch.hpp>
 
 #include "bounds/quadrature.h"
+#include "bounds/simulate.h"
 
 using namespace tallyd::bounds;
 using tallyd::glm::Family;
@@ -84,4 +85,74 @@ TEST_CASE("screen: the Chernoff bound lies above the exact binomial lower tail",
   }
   CHECK(binomial_low_tail_bound(0.01, 0.005, 1000) == 1);  // p below alpha: nothing settled
   CHECK(binomial_low_tail_bound(0.001, 0.02, 10000) < 1e-12);
+}
+
+TEST_CASE("screen: stage 2 settles records in the tails of a wide mixture, never one the full quadrature flags",
+          "[bounds][screen]") {
+  // Counts between 2 and 4 sd of a Poisson-log mixture with sd(eta*) of 0.1
+  // to 0.45 (Gauss-Hermite and grid rules): stage 1's floor is about half the
+  // central tail there. The reference is the full quadrature, itself checked
+  // against Boost.Math's adaptive Gauss-Kronrod in quadrature_test.cc.
+  const double alpha = 0.001;
+  int second = 0, checked = 0;
+  for (const CountNoise& noise : {CountNoise{Family::poisson, Link::log, 1, 0},
+                                  CountNoise{Family::quasipoisson, Link::log, 1.8, 0}}) {
+    for (double mean : {20.0, 80.0, 300.0}) {
+      for (double sd : {0.1, 0.2, 0.45}) {
+        const Predictor p{std::log(mean), sd * sd};
+        const double spread = std::sqrt(mean * noise.dispersion + sd * sd * mean * mean);
+        for (double z = -4; z <= 4.01; z += 0.25) {
+          const auto y = static_cast<std::int64_t>(std::max(0.0, std::round(mean + z * spread)));
+          const ScreenOutcome s = screen_record(p, noise, y, 48, alpha, 0);
+          const Bounds full = quadrature_bounds(p, noise, y, 48, alpha);
+          ++checked;
+          CHECK(s.p_high_floor <= full.p_high * (1 + 1e-9));
+          CHECK(s.p_low_floor <= full.p_low * (1 + 1e-9));
+          if (s.settled) CHECK_FALSE((full.p_high <= alpha || full.p_low <= alpha));
+          if (s.settled && s.stage == 2) ++second;
+        }
+      }
+    }
+  }
+  CHECK(checked == 594);
+  CHECK(second > 20);  // stage 2 did settle records stage 1 could not
+}
+
+TEST_CASE("screen: simulate's stage 2 settles only records far from the draws' verdict", "[bounds][screen]") {
+  // The band floors bound the true mixture (Gaussian eta*), which the full
+  // quadrature gives to ~1e-8 (quadrature_test.cc). A record settled for
+  // 10,000 draws must have both p-values well above alpha (the Chernoff
+  // condition needs about 3.5 alpha; 2 alpha is checked) and its draws
+  // (src/bounds/simulate.h, fixed seed) must not flag it.
+  const double alpha = 0.001;
+  const int draws = 10000;
+  int second = 0, checked = 0;
+  for (const CountNoise& noise : {CountNoise{Family::poisson, Link::log, 1, 0},
+                                  CountNoise{Family::quasipoisson, Link::log, 1.8, 0}}) {
+    for (double mean : {20.0, 300.0}) {
+      for (double sd : {0.2, 0.45}) {
+        const Predictor p{std::log(mean), sd * sd};
+        const double spread = std::sqrt(mean * noise.dispersion + sd * sd * mean * mean);
+        for (double z = -4; z <= 4.01; z += 0.5) {
+          const auto y = static_cast<std::int64_t>(std::max(0.0, std::round(mean + z * spread)));
+          const ScreenOutcome s = screen_record(p, noise, y, 48, alpha, draws);
+          ++checked;
+          if (!s.settled) continue;
+          // The engine judges a settled record by these floors: above alpha.
+          CHECK(s.p_high_floor > alpha);
+          CHECK(s.p_low_floor > alpha);
+          const Bounds full = quadrature_bounds(p, noise, y, 48, alpha);
+          CHECK(full.p_high > 2 * alpha);
+          CHECK(full.p_low > 2 * alpha);
+          Rng rng(static_cast<std::uint64_t>(1000 + checked));
+          const Bounds drawn = simulate_bounds(p, noise, y, draws, alpha, rng);
+          CHECK(drawn.p_high > alpha);
+          CHECK(drawn.p_low > alpha);
+          if (s.stage == 2) ++second;
+        }
+      }
+    }
+  }
+  CHECK(checked == 136);
+  CHECK(second > 5);  // stage 2 settled records stage 1 could not
 }

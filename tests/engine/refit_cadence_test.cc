@@ -37,7 +37,8 @@ std::vector<Observation> cadence_feed(int series, int days) {
   return feed;
 }
 
-SettingsTable cadence_settings(std::size_t refit_every, bool doubt) {
+SettingsTable cadence_settings(std::size_t refit_every, bool doubt, std::size_t cadence_from = 0,
+                               double doubt_factor = 10) {
   SettingsTable t;
   ModelSpec& m = t.defaults.model;
   m.family = glm::Family::quasipoisson;
@@ -47,6 +48,8 @@ SettingsTable cadence_settings(std::size_t refit_every, bool doubt) {
   m.min_history = 30;
   m.refit_every = refit_every;
   m.refit_on_doubt = doubt;
+  m.cadence_from = cadence_from;
+  m.doubt_factor = doubt_factor;
   t.defaults.alert.alpha = 0.001;
   t.defaults.alert.screen = true;  // exact (tests/engine/engine_screen_test.cc); keeps this test quick
   return t;
@@ -101,4 +104,26 @@ TEST_CASE("refit cadence: refit on doubt refits far less often than every record
   for (const auto& [id, model] : every.series()) fits_every += model->fits_done();
   for (const auto& [id, model] : lazy.series()) fits_lazy += model->fits_done();
   CHECK(fits_lazy * 3 < fits_every);
+}
+
+// The setting docs/benchmarks.md ("Speed, fifth pass") recommends for speed:
+// refit every 28th record on doubt at 30 alpha, after every record while the
+// window holds fewer than 60. Held to the same 0.1% rule, and to losing or
+// gaining at most one alert in 20 on this feed.
+TEST_CASE("refit cadence: every 28th record on doubt at 30 alpha from 60 records changes at most 0.1% of verdicts",
+          "[engine][cadence]") {
+  const std::vector<Observation> feed = cadence_feed(40, 200);
+  const std::vector<int> every = verdicts(feed, cadence_settings(1, false));
+  const std::vector<int> lazy = verdicts(feed, cadence_settings(28, true, 60, 30));
+  std::size_t judged = 0, differ = 0, alerts = 0, lazy_alerts = 0;
+  for (std::size_t i = 0; i < feed.size(); ++i) {
+    judged += every[i] != 2;
+    alerts += every[i] == 1 || every[i] == -1;
+    lazy_alerts += lazy[i] == 1 || lazy[i] == -1;
+    differ += every[i] != lazy[i];
+  }
+  REQUIRE(judged > 6000);
+  REQUIRE(alerts > 3);
+  CHECK(static_cast<double>(differ) <= 0.001 * static_cast<double>(judged));
+  CHECK(std::abs(static_cast<double>(lazy_alerts) - static_cast<double>(alerts)) <= 0.05 * static_cast<double>(alerts) + 0.5);
 }
