@@ -8,7 +8,8 @@
 // counts with a few invented spikes), runs it through tallyd's Engine
 // (quasi-Poisson, log link, trend, annual and weekly harmonic pair, refit
 // every record, quadrature bounds; timed best of 5, and again with the
-// screen on, whose alerts are compared too), writes each record's design row and
+// screen on and with the screen plus the guarded refit cadence, whose alerts
+// are compared too), writes each record's design row and
 // tallyd's bounds to PATH/r_compare_feed.csv, then runs an R script that,
 // for every record tallyd judged, fits glm(quasipoisson) to the same window
 // of earlier records and computes the bounds of the same predictive mixture
@@ -171,6 +172,19 @@ int main(int argc, char** argv) {
   SettingsTable screened_settings = settings;
   screened_settings.defaults.alert.screen = true;
   const double screened_seconds = run_tallyd(screened_settings, screened_results, screened_counters);
+  // And with the refit cadence that tests/engine/refit_cadence_test.cc guards
+  // (every 28th record, refit on doubt at 30 alpha, every record until the
+  // window holds 60): a different computation, so its alerts are compared
+  // with R's record by record as well.
+  SettingsTable cadence_settings = screened_settings;
+  ModelSpec& cm = cadence_settings.defaults.model;
+  cm.refit_every = 28;
+  cm.refit_on_doubt = true;
+  cm.doubt_factor = 30;
+  cm.cadence_from = 60;
+  std::vector<IngestResult> cadence_results;
+  EngineCounters cadence_counters;
+  const double cadence_seconds = run_tallyd(cadence_settings, cadence_results, cadence_counters);
 
   // Design rows as the model builds them (origin = the series' first record).
   const std::string feed_path = a.dir + "/r_compare_feed.csv";
@@ -213,6 +227,7 @@ int main(int argc, char** argv) {
   std::string line;
   std::getline(in, line);
   long compared = 0, lower_diff = 0, upper_diff = 0, alert_diff = 0, tallyd_alerts = 0, screened_alert_diff = 0;
+  long cadence_alert_diff = 0;
   while (std::getline(in, line)) {
     std::stringstream ss(line);
     double row = 0, lower = 0, upper = 0;
@@ -229,6 +244,7 @@ int main(int argc, char** argv) {
     upper_diff += b.upper != static_cast<std::int64_t>(upper);
     alert_diff += r_alert != t_alert;
     screened_alert_diff += r_alert != screened_results.at(i).alert.has_value();
+    cadence_alert_diff += r_alert != cadence_results.at(i).alert.has_value();
   }
   const double judged = static_cast<double>(counters.judged);
   std::printf("feed: %d series x %d days = %zu records, %.0f judged; window %zu; alpha %g\n", a.series, a.days,
@@ -236,13 +252,19 @@ int main(int argc, char** argv) {
   std::printf("%-28s %10s %14s\n", "", "seconds", "judged/s");
   std::printf("%-28s %10.3f %14.0f\n", "tallyd Engine (all records)", tallyd_seconds, judged / tallyd_seconds);
   std::printf("%-28s %10.3f %14.0f\n", "tallyd, screen on", screened_seconds, judged / screened_seconds);
+  std::printf("%-28s %10.3f %14.0f\n", "tallyd, screen + cadence 28", cadence_seconds, judged / cadence_seconds);
   std::printf("%-28s %10.3f %14.0f\n", "R glm loop (judged only)", r_seconds, judged / r_seconds);
   std::printf("%-28s %10.3f\n", "Rscript wall incl. start-up", r_wall);
-  std::printf("ratio R / tallyd: %.0fx (exact bounds on every record); %.0fx (screen on)\n",
-              r_seconds / tallyd_seconds, r_seconds / screened_seconds);
+  std::printf("ratio R / tallyd: %.0fx (exact bounds on every record); %.0fx (screen on); %.0fx (screen, cadence 28 on doubt)\n",
+              r_seconds / tallyd_seconds, r_seconds / screened_seconds, r_seconds / cadence_seconds);
   std::printf("compared %ld records: lower differs %ld, upper differs %ld, alert differs %ld (tallyd alerts %ld)\n",
               compared, lower_diff, upper_diff, alert_diff, tallyd_alerts);
   std::printf("screen on: alert differs %ld of %ld (judged %llu)\n", screened_alert_diff, compared,
               static_cast<unsigned long long>(screened_counters.judged));
-  return compared == static_cast<long>(judged) && screened_counters.judged == counters.judged ? 0 : 1;
+  std::printf("screen + cadence 28 on doubt: alert differs %ld of %ld (judged %llu)\n", cadence_alert_diff, compared,
+              static_cast<unsigned long long>(cadence_counters.judged));
+  return compared == static_cast<long>(judged) && screened_counters.judged == counters.judged &&
+                 cadence_counters.judged == counters.judged
+             ? 0
+             : 1;
 }
