@@ -44,9 +44,11 @@ Bounds evaluate(const Predictor& predictor, const CountNoise& noise, std::int64_
   observed = std::min(observed, kMaxCount);
 
   const bool simulate = options.method == Method::simulate && rng != nullptr;
+  double screened_expected = 0;
   if (options.screen) {
     const ScreenOutcome s = screen_record(p, noise, observed, options.quadrature_nodes, alpha,
                                           simulate ? std::max(options.draws, 1) : 0);
+    screened_expected = s.expected;
     if (s.settled) {
       Bounds b;
       b.screened = true;
@@ -59,7 +61,11 @@ Bounds evaluate(const Predictor& predictor, const CountNoise& noise, std::int64_
     }
   }
   if (simulate) {
-    return simulate_bounds(p, noise, observed, options.draws, alpha, *rng);
+    // With the screen on, the draws stop once neither side can alert
+    // (simulate.h): the verdict is the full draws' exactly.
+    Bounds b = simulate_bounds(p, noise, observed, options.draws, alpha, *rng, options.screen);
+    if (b.screened) b.expected = screened_expected;
+    return b;
   }
   return quadrature_bounds(p, noise, observed, options.quadrature_nodes, alpha);
 }

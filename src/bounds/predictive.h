@@ -88,7 +88,8 @@ struct Options {
   double alpha = 0.001;       // one-sided tail probability for each bound; clamped to [1e-300, 0.5]
   bool screen = false;        // settle records that provably raise no alert before the full evaluation
                               // (bounds/screen.h): never changes a quadrature verdict; changes a simulate
-                              // verdict with probability <= 2e-12 per record. Settled records come back
+                              // verdict with probability <= 2e-12 per record; simulate's draws also stop
+                              // once neither side can alert (exact, simulate.h). Settled records come back
                               // with `screened` set and without integer bounds (see Bounds).
 };
 
@@ -101,8 +102,8 @@ struct Bounds {
   // Set when Options::screen settled the record ("no alert" on both sides)
   // without the full evaluation: lower = 0 and upper = INT64_MAX were not
   // computed, p_high and p_low are lower bounds on the p-values (both above
-  // alpha), and expected is the quadrature mixture's mean (also for
-  // simulate). Ask again with screen off when the real values are needed.
+  // alpha; for simulate stopped early, on the full draws' p-values), and
+  // expected is the quadrature mixture's mean (also for simulate). Ask again with screen off when the real values are needed.
   bool screened = false;
 };
 

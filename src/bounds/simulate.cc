@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <limits>
 #include <vector>
 
 #include "bounds/count_noise.h"
@@ -33,27 +34,10 @@ std::int64_t select(std::vector<std::int64_t>& y, std::size_t index, std::size_t
 }  // namespace
 
 Bounds simulate_bounds(const Predictor& predictor, const CountNoise& noise, std::int64_t observed,
-                       int draws, double alpha, Rng& rng) {
+                       int draws, double alpha, Rng& rng, bool early_settle) {
   const std::size_t n = static_cast<std::size_t>(std::max(draws, 1));
   const double n_real = static_cast<double>(n);
   const double sd = std::sqrt(predictor.eta_variance);
-  std::vector<std::int64_t> y(n);
-  Bounds b;
-
-  if (sd == 0) {
-    const NoiseAt d = noise_at(noise, mean_from_eta(noise.link, predictor.eta_mean));
-    for (std::int64_t& v : y) v = draw_count(d, rng);
-    b.expected = d.at_zero ? 0 : d.mu;
-  } else {
-    double sum_mu = 0;
-    for (std::int64_t& v : y) {
-      const double mu = mean_from_eta(noise.link, predictor.eta_mean + sd * rng.normal());
-      const NoiseAt d = noise_at(noise, mu);
-      v = draw_count(d, rng);
-      sum_mu += d.at_zero ? 0 : d.mu;
-    }
-    b.expected = sum_mu / n_real;
-  }
 
   // All tail probabilities are count / n with this one expression, and
   // `tail` is the largest count whose fraction is <= alpha. Division by a
@@ -65,12 +49,37 @@ Bounds simulate_bounds(const Predictor& predictor, const CountNoise& noise, std:
   while (tail > 0 && fraction(tail) > alpha) --tail;
   // alpha <= 0.5 keeps tail <= n / 2 < n.
 
-  std::size_t at_most = 0;  // #(y <= observed)
+  std::vector<std::int64_t> y(n);
+  std::size_t at_most = 0;   // #(y <= observed) among the draws so far
   std::size_t at_least = 0;  // #(y >= observed)
-  for (const std::int64_t v : y) {
+  double sum_mu = 0;
+  const NoiseAt fixed = sd == 0 ? noise_at(noise, mean_from_eta(noise.link, predictor.eta_mean)) : NoiseAt{};
+  for (std::size_t i = 0; i < n; ++i) {
+    std::int64_t v = 0;
+    if (sd == 0) {
+      v = draw_count(fixed, rng);
+    } else {
+      const NoiseAt d = noise_at(noise, mean_from_eta(noise.link, predictor.eta_mean + sd * rng.normal()));
+      v = draw_count(d, rng);
+      sum_mu += d.at_zero ? 0 : d.mu;
+    }
+    y[i] = v;
     at_most += v <= observed;
     at_least += v >= observed;
+    if (early_settle && at_most > tail && at_least > tail) {
+      // Both counts only grow: the remaining draws cannot flag the record.
+      Bounds settled;
+      settled.screened = true;
+      settled.lower = 0;
+      settled.upper = std::numeric_limits<std::int64_t>::max();
+      settled.p_low = fraction(at_most);
+      settled.p_high = fraction(at_least);
+      return settled;
+    }
   }
+
+  Bounds b;
+  b.expected = sd == 0 ? (fixed.at_zero ? 0 : fixed.mu) : sum_mu / n_real;
   b.p_low = fraction(at_most);
   b.p_high = fraction(at_least);
 

@@ -17,7 +17,16 @@ namespace tallyd::bounds {
 
 // Preconditions (checked by evaluate): eta_mean and eta_variance finite,
 // eta_variance >= 0, alpha in [1e-300, 0.5], 0 <= observed <= 2^53.
+//
+// With `early_settle` (used by Options::screen): stops drawing as soon as
+// both #(y* >= observed) and #(y* <= observed) exceed the largest count whose
+// fraction of `draws` is <= alpha. Both counts only grow with more draws, so
+// the full draws could not flag the record on either side: the verdict is
+// exactly that of the full draws (no alert), drawn from the same stream in
+// the same order. Such a result is marked screened: lower 0, upper
+// INT64_MAX, p_high and p_low the counts so far over `draws` (lower bounds
+// on the full draws' p-values), expected left 0 for the caller to set.
 Bounds simulate_bounds(const Predictor& predictor, const CountNoise& noise, std::int64_t observed,
-                       int draws, double alpha, Rng& rng);
+                       int draws, double alpha, Rng& rng, bool early_settle = false);
 
 }  // namespace tallyd::bounds
