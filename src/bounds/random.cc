@@ -156,7 +156,6 @@ std::int64_t Rng::poisson(double mean) {
 
   // PTRS, Hormann (1993), constants from the paper.
   const double slam = std::sqrt(mean);
-  const double loglam = std::log(mean);
   const double b = 0.931 + 2.53 * slam;
   const double a = -0.059 + 0.02483 * b;
   const double inv_alpha = 1.1239 + 1.1328 / (b - 3.4);
@@ -172,6 +171,9 @@ std::int64_t Rng::poisson(double mean) {
     if (us >= 0.07 && v <= vr) return static_cast<std::int64_t>(kd);  // kd >= 0 here for mean >= 10
     if (kd < 0 || kd > kCandidateCap || (us < 0.013 && v > us)) continue;
     const std::int64_t k = static_cast<std::int64_t>(kd);
+    // log(mean) only here: most draws return by the quick acceptance above
+    // (same value as computing it up front, one log fewer per such draw).
+    const double loglam = std::log(mean);
     if (std::log(v) + std::log(inv_alpha) - std::log(a / (us * us) + b) <=
         -mean + kd * loglam - log_factorial(k)) {
       return k;
