@@ -81,6 +81,44 @@ Walk walk_nodes(const Predictor& predictor, const CountNoise& noise, const Quadr
 // P(Y >= k) from a component's tails.
 double at_least(const Tails& t, std::int64_t k) { return k == 0 ? 1.0 : std::min(t.sf + t.pmf, 1.0); }
 
+// A stage-2 floor on one side: the sum over bands of the band's weight times
+// the tail towards `observed` (P(Y >= observed) when `high`, else
+// P(Y <= observed)) at the band's representative; band 0's representative is
+// the centre, whose tails are `t`. rep_eta(b) is band b's eta (b >= 1),
+// present(b) whether band b holds any weight.
+template <class RepEta, class Present>
+double band_floor(bool high, const double* weight, RepEta rep_eta, Present present, const CountNoise& noise,
+                  const Tails& t, std::int64_t observed) {
+  const auto tail = [&](const Tails& x) { return high ? at_least(x, observed) : std::min(x.cdf, 1.0); };
+  double floor = weight[0] * tail(t);
+  for (int b = 1; b < kScreenBands; ++b) {
+    if (!present(b)) continue;
+    floor += weight[b] * tail(tails_at(noise_at(noise, mean_from_eta(noise.link, rep_eta(b))), observed));
+  }
+  return floor;
+}
+
+// The Gaussian probability of each band of eta* on one side, band b being
+// [edge[b], edge[b + 1]) sd from eta_mean (edge[0] = 0, the last band open):
+// constants of kBandEdges, computed once.
+struct GaussianBands {
+  double edge[kScreenBands] = {0};
+  double probability[kScreenBands] = {};
+};
+
+const GaussianBands& gaussian_bands() {
+  static const GaussianBands bands = [] {
+    GaussianBands g;
+    for (int b = 1; b < kScreenBands; ++b) g.edge[b] = kBandEdges[b - 1];
+    for (int b = 0; b < kScreenBands; ++b) {
+      const double outer = b + 1 < kScreenBands ? 0.5 * std::erfc(g.edge[b + 1] / std::sqrt(2.0)) : 0.0;
+      g.probability[b] = 0.5 * std::erfc(g.edge[b] / std::sqrt(2.0)) - outer;
+    }
+    return g;
+  }();
+  return bands;
+}
+
 }  // namespace
 
 ScreenOutcome screen_record(const Predictor& predictor, const CountNoise& noise, std::int64_t observed,
@@ -109,21 +147,15 @@ ScreenOutcome screen_record(const Predictor& predictor, const CountNoise& noise,
     // partition W_up (W_low), so the sum is a tighter floor.
     out.stage = 2;
     if (!(out.p_high_floor > needed)) {
-      double floor = w.high_band[0] * at_least(t, observed);
-      for (int b = 1; b < kScreenBands; ++b) {
-        if (!w.high_seen[b]) continue;
-        const NoiseAt d = noise_at(noise, mean_from_eta(noise.link, w.high_rep[b]));
-        floor += w.high_band[b] * at_least(tails_at(d, observed), observed);
-      }
+      const double floor = band_floor(
+          true, w.high_band, [&](int b) { return w.high_rep[b]; }, [&](int b) { return w.high_seen[b]; }, noise, t,
+          observed);
       if (std::isfinite(floor)) out.p_high_floor = std::max(out.p_high_floor, floor);
     }
     if (!(out.p_low_floor > needed)) {
-      double floor = w.low_band[0] * std::min(t.cdf, 1.0);
-      for (int b = 1; b < kScreenBands; ++b) {
-        if (!w.low_seen[b]) continue;
-        const NoiseAt d = noise_at(noise, mean_from_eta(noise.link, w.low_rep[b]));
-        floor += w.low_band[b] * std::min(tails_at(d, observed).cdf, 1.0);
-      }
+      const double floor = band_floor(
+          false, w.low_band, [&](int b) { return w.low_rep[b]; }, [&](int b) { return w.low_seen[b]; }, noise, t,
+          observed);
       if (std::isfinite(floor)) out.p_low_floor = std::max(out.p_low_floor, floor);
     }
     out.settled = out.p_high_floor > needed && out.p_low_floor > needed;
@@ -142,27 +174,16 @@ ScreenOutcome screen_record(const Predictor& predictor, const CountNoise& noise,
       // probability of that band, and the tail towards `observed` is at
       // least its value at the band's inner edge.
       out.stage = 2;
-      double band[kScreenBands];
-      double edge[kScreenBands] = {0};
-      for (int b = 1; b < kScreenBands; ++b) edge[b] = kBandEdges[b - 1];
-      for (int b = 0; b < kScreenBands; ++b) {
-        const double outer = b + 1 < kScreenBands ? 0.5 * std::erfc(edge[b + 1] / std::sqrt(2.0)) : 0.0;
-        band[b] = 0.5 * std::erfc(edge[b] / std::sqrt(2.0)) - outer;
-      }
+      const GaussianBands& g = gaussian_bands();
+      const auto every = [](int) { return true; };
       if (!settles(high)) {
-        double floor = band[0] * at_least(t, observed);
-        for (int b = 1; b < kScreenBands; ++b) {
-          const NoiseAt d = noise_at(noise, mean_from_eta(noise.link, predictor.eta_mean + edge[b] * sd));
-          floor += band[b] * at_least(tails_at(d, observed), observed);
-        }
+        const double floor = band_floor(
+            true, g.probability, [&](int b) { return predictor.eta_mean + g.edge[b] * sd; }, every, noise, t, observed);
         if (std::isfinite(floor)) high = std::max(high, floor * (1 - kScreenMargin));
       }
       if (!settles(low)) {
-        double floor = band[0] * std::min(t.cdf, 1.0);
-        for (int b = 1; b < kScreenBands; ++b) {
-          const NoiseAt d = noise_at(noise, mean_from_eta(noise.link, predictor.eta_mean - edge[b] * sd));
-          floor += band[b] * std::min(tails_at(d, observed).cdf, 1.0);
-        }
+        const double floor = band_floor(
+            false, g.probability, [&](int b) { return predictor.eta_mean - g.edge[b] * sd; }, every, noise, t, observed);
         if (std::isfinite(floor)) low = std::max(low, floor * (1 - kScreenMargin));
       }
     }
