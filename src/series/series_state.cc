@@ -3,6 +3,7 @@
 #include <algorithm>
 #include <bit>
 #include <cstdint>
+#include <type_traits>
 
 #include <fmt/format.h>
 
@@ -164,20 +165,18 @@ void SeriesModel::load_state(StateReader& r) {
   const std::size_t rows = static_cast<std::size_t>(std::min<std::uint64_t>(n, r.remaining() / 3));
   bulk_.reset();
   const std::shared_ptr<BulkMemory> bulk = rows > 0 ? r.memory() : nullptr;
-  if (void* block = bulk ? bulk->take(rows * sizeof(Stored)) : nullptr) {
-    records_.adopt(static_cast<Stored*>(block), rows);
-    bulk_ = bulk;
-  } else {
-    records_.reserve(rows);
-  }
-  if (k > 0) {
-    if (void* block = bulk ? bulk->take(rows * k * sizeof(double)) : nullptr) {
-      covariate_values_.adopt(static_cast<double*>(block), rows);
+  // A ring's block from the bulk mapping when it can hold it, else its own.
+  const auto place = [&](auto& ring) {
+    using Row = std::remove_pointer_t<decltype(ring.row(0))>;
+    if (void* block = bulk ? bulk->take(rows * ring.width() * sizeof(Row)) : nullptr) {
+      ring.adopt(static_cast<Row*>(block), rows);
       bulk_ = bulk;
     } else {
-      covariate_values_.reserve(rows);
+      ring.reserve(rows);
     }
-  }
+  };
+  place(records_);
+  if (k > 0) place(covariate_values_);
   std::int64_t previous = 0;
   for (std::uint64_t i = 0; i < n && !r.failed(); ++i) {
     Stored& s = *records_.push_back();
