@@ -24,7 +24,8 @@ SeriesModel::SeriesModel(std::string id, const SeriesSettings& settings)
       records_(1, window_rows(settings.model)),
       covariate_values_(settings.model.covariates.size(), window_rows(settings.model)),
       season_values_(static_cast<std::size_t>(season_column_count(settings.model)), window_rows(settings.model)),
-      seasons_per_row_(season_column_count(settings.model)) {}
+      seasons_per_row_(season_column_count(settings.model)),
+      fit_weights_(1, window_rows(settings.model)) {}
 
 std::optional<std::string> SeriesModel::missing_covariate(const Observation& obs) const {
   for (const std::string& name : settings_->model.covariates)
@@ -125,14 +126,119 @@ void SeriesModel::learn(const Observation& obs, double weight) {
   if (seasons_per_row_ > 0) push_season_values(obs.time);
   trim_window(obs.time);
   ++since_refit_;
+  // A restored series has no step sums: it refits at its first record.
+  const bool steps = steps_on();
   if (records_.size() >= min_history() + settings_->model.guard_records &&
       (since_refit_ >= settings_->model.refit_every || !has_fit_ ||
-       records_.size() < settings_->model.cadence_from)) {
+       records_.size() < settings_->model.cadence_from || (steps && !step_.active()))) {
     refit();
+  } else if (steps && step_.active()) {
+    step_forward();
+  }
+}
+
+bool SeriesModel::steps_on() const {
+  const ModelSpec& spec = settings_->model;
+  return spec.step_between_refits && spec.refit_every > 1 && spec.link == glm::Link::log;
+}
+
+double SeriesModel::stored_row(std::size_t i) {
+  const Stored& r = *records_.row(i);
+  const double* cov = covariate_values_.row(i);
+  if (!season_cache_ok()) return row_for(r.time, r.exposure, cov, step_x_);
+  const DesignInput in{r.time, origin_.value_or(r.time), r.exposure, cov};
+  return design_row(settings_->model, in, season_values_.row(i), step_x_);
+}
+
+void SeriesModel::start_steps(const Eigen::VectorXd& fit_weights, const Correction& correction, double gamma) {
+  step_correction_ = correction;
+  step_gamma_ = gamma;
+  Eigen::VectorXd beta_star = fit_.coefficients;
+  if (beta_star.size() > 0) beta_star(0) += correction.mean_shift;  // the resistant fit's own intercept
+  step_.reset(beta_star, settings_->model.family, fit_.theta);
+  step_x_.resize(p_);
+  fit_weights_.clear();
+  for (Eigen::Index i = 0; i < X_.rows(); ++i) {
+    const Eigen::RowVectorXd row = X_.row(i);
+    step_.account(row.data(), offset_(i), y_(i), fit_weights(i), 1);
+    *fit_weights_.push_back() = fit_weights(i);
+  }
+  const std::size_t n = step_.rows();
+  step_phi_start_ = n > static_cast<std::size_t>(p_) ? step_.pearson() / static_cast<double>(n - p_) : 1;
+  if (!(step_phi_start_ > 0)) step_phi_start_ = 1;
+}
+
+double SeriesModel::step_weight(double offset, double y, double prior) const {
+  const ModelSpec& spec = settings_->model;
+  if (!spec.reweight || !(prior > 0)) return prior;
+  // As resistant_weights, against the published fit.
+  const double eta = step_x_.dot(fit_.coefficients) + offset;
+  const double mu = std::exp(eta);
+  if (!(mu > 1e-12) || !std::isfinite(mu)) return step_gamma_ * prior;
+  const double threshold = spec.reweight_threshold;
+  if (threshold >= 0 && !(y > mu)) return step_gamma_ * prior;
+  const double phi = spec.family == glm::Family::quasipoisson && std::isfinite(fit_.dispersion) && fit_.dispersion > 0
+                         ? fit_.dispersion
+                         : 1.0;
+  const bool nb = spec.family == glm::Family::negbin && std::isfinite(fit_.theta) && fit_.theta > 0;
+  const double variance = nb ? mu + mu * mu / fit_.theta : mu;
+  const double quadratic = step_x_.dot(fit_.covariance * step_x_.transpose());
+  const double h = std::clamp(prior * mu * mu / variance * quadratic / phi, 0.0, 0.99);
+  const double mu23 = std::cbrt(mu * mu);
+  const double anscombe = 1.5 * (std::cbrt(y * y) - mu23) / std::sqrt(std::sqrt(mu23));
+  const double index = nb ? 1 + mu / fit_.theta : phi;
+  const double z = anscombe / std::sqrt(index * (1 - h));
+  return step_gamma_ * (z > threshold ? prior / (z * z) : prior);
+}
+
+void SeriesModel::step_forward() {
+  const std::size_t guard = settings_->model.guard_records;
+  while (fit_weights_.size() + guard < records_.size()) {
+    const std::size_t i = fit_weights_.size();
+    const double offset = stored_row(i);
+    const Stored& r = *records_.row(i);
+    const double y = static_cast<double>(r.count);
+    const double w = step_weight(offset, y, r.weight);
+    step_.account(step_x_.data(), offset, y, w, 1);
+    *fit_weights_.push_back() = w;
+  }
+  Eigen::VectorXd beta;
+  Eigen::MatrixXd inverse;
+  if (!step_.solve(beta, inverse)) {
+    refit();  // no step from these sums (an aliased column): the full fit decides
+    return;
+  }
+  const std::size_t n = step_.rows();
+  // Far from beta*, or on a window that no longer fits it: refit fully.
+  const double scale = settings_->model.family == glm::Family::quasipoisson ? step_phi_start_ : 1.0;
+  const double phi_now = n > static_cast<std::size_t>(p_) ? step_.pearson() / static_cast<double>(n - p_) : 0;
+  if (!(step_.distance2(beta) <= kMaxStepDistance * kMaxStepDistance * scale) ||
+      !(phi_now <= kMaxStepDispersionGrowth * step_phi_start_)) {
+    refit();
+    return;
+  }
+  fit_.coefficients = beta;
+  if (fit_.coefficients.size() > 0) fit_.coefficients(0) -= step_correction_.mean_shift;
+  fit_.n = static_cast<int>(n);
+  fit_.df_residual = static_cast<int>(n) - p_;
+  if (settings_->model.family == glm::Family::quasipoisson && fit_.df_residual > 0) {
+    fit_.dispersion = step_.pearson() / fit_.df_residual / step_correction_.dispersion_divisor;
+    fit_.covariance = fit_.dispersion * inverse;
+  } else {
+    fit_.covariance = inverse;
   }
 }
 
 void SeriesModel::drop_oldest(std::size_t rows) {
+  if (step_.active()) {
+    // The records leaving the window take their terms out of the sums.
+    const std::size_t in_fit = std::min(rows, fit_weights_.size());
+    for (std::size_t i = 0; i < in_fit; ++i) {
+      const double offset = stored_row(i);
+      step_.account(step_x_.data(), offset, static_cast<double>(records_.row(i)->count), *fit_weights_.row(i), -1);
+    }
+    fit_weights_.pop_front(in_fit);
+  }
   records_.pop_front(rows);
   if (!settings_->model.covariates.empty()) covariate_values_.pop_front(rows);
   if (seasons_per_row_ > 0) {
@@ -203,6 +309,11 @@ void SeriesModel::refit() {
   last_fit_note_ = result.note;
   // A failed fit keeps the previous coefficients; a non-converged one is used
   // only when there is nothing better.
+  const bool steps = steps_on();
+  Eigen::VectorXd fit_weights;
+  if (steps) fit_weights = weights_;
+  Correction correction;
+  double gamma = 1;
   if (result.status == glm::FitStatus::ok && settings_->model.reweight) {
     // Outbreak-resistant refit: down-weight outlying records and fit once
     // more from the previous fit (Farrington et al. 1996; Noufaily et al.
@@ -213,26 +324,32 @@ void SeriesModel::refit() {
     // outbreak records fall below the threshold (masking).
     bool corrected = false;
     for (std::size_t round = 0; round < settings_->model.reweight_rounds; ++round) {
-      Eigen::VectorXd resistant = resistant_weights(result);
+      double round_gamma = 1;
+      Eigen::VectorXd resistant = resistant_weights(result, &round_gamma);
       if (resistant.size() == 0) break;
       glm::FitResult next = glm::fit_glm(X_, y_, offset_, resistant, options, &result.coefficients, true);
       ++fits_done_;
       if (next.status != glm::FitStatus::ok) break;
       result = std::move(next);
-      correct_resistant_fit(result);
+      correction = correct_resistant_fit(result);
       corrected = true;
+      if (steps) fit_weights = std::move(resistant);
+      gamma = round_gamma;
     }
-    if (!corrected) correct_resistant_fit(result);
+    if (!corrected) correction = correct_resistant_fit(result);
   }
-  if (result.status == glm::FitStatus::ok ||
-      (result.status == glm::FitStatus::not_converged && !has_fit_)) {
+  const bool converged = result.status == glm::FitStatus::ok;
+  if (converged || (result.status == glm::FitStatus::not_converged && !has_fit_)) {
     fit_ = std::move(result);
     has_fit_ = true;
   }
+  // Steps start only from a converged fit; otherwise the next record refits.
+  if (steps && converged) start_steps(fit_weights, correction, gamma);
+  else step_.clear();
   release_workspace();
 }
 
-void SeriesModel::correct_resistant_fit(glm::FitResult& result) const {
+SeriesModel::Correction SeriesModel::correct_resistant_fit(glm::FitResult& result) const {
   // The weighted Pearson statistic of the resistant fit lacks the largest
   // residuals, so its quasi-Poisson phi runs low even with no outbreak;
   // divide by the expected shrinkage (series/resistant_dispersion.h). The
@@ -245,7 +362,8 @@ void SeriesModel::correct_resistant_fit(glm::FitResult& result) const {
   const ModelSpec& spec = settings_->model;
   const bool quasi = spec.family == glm::Family::quasipoisson && result.dispersion > 0;
   const bool mean_fix = spec.reweight_mean_correction && spec.link == glm::Link::log;
-  if (!quasi && !mean_fix) return;
+  Correction applied;
+  if (!quasi && !mean_fix) return applied;
   // At the window's average fitted mean, and at the corrected phi (one
   // step: the factor moves slowly with phi).
   const Eigen::VectorXd eta = X_ * result.coefficients + offset_;
@@ -261,9 +379,13 @@ void SeriesModel::correct_resistant_fit(glm::FitResult& result) const {
   if (quasi) {
     result.covariance /= moments.dispersion_factor;
     result.dispersion /= moments.dispersion_factor;
+    applied.dispersion_divisor = moments.dispersion_factor;
   }
-  if (mean_fix && moments.mean_factor > 0 && result.coefficients.size() > 0)
-    result.coefficients(0) -= std::log(moments.mean_factor);  // column 0 is the intercept (series/design.h)
+  if (mean_fix && moments.mean_factor > 0 && result.coefficients.size() > 0) {
+    applied.mean_shift = std::log(moments.mean_factor);
+    result.coefficients(0) -= applied.mean_shift;  // column 0 is the intercept (series/design.h)
+  }
+  return applied;
 }
 
 void SeriesModel::release_workspace() {
@@ -276,7 +398,7 @@ void SeriesModel::release_workspace() {
   weights_.resize(0);
 }
 
-Eigen::VectorXd SeriesModel::resistant_weights(const glm::FitResult& fit) const {
+Eigen::VectorXd SeriesModel::resistant_weights(const glm::FitResult& fit, double* gamma) const {
   const Eigen::Index n = X_.rows();
   const glm::Family family = settings_->model.family;
   const glm::Link link = settings_->model.link;
@@ -323,7 +445,9 @@ Eigen::VectorXd SeriesModel::resistant_weights(const glm::FitResult& fit) const 
   // gamma: keep the total prior weight (Farrington et al. 1996).
   const double total = w.sum();
   if (!(total > 0)) return {};
-  w *= weights_.sum() / total;
+  const double scale = weights_.sum() / total;
+  w *= scale;
+  if (gamma != nullptr) *gamma = scale;
   return w;
 }
 

@@ -139,6 +139,10 @@ void SeriesModel::save_state(StateWriter& w) const {
 
 void SeriesModel::load_state(StateReader& r) {
   r.expect("model");
+  // The step sums (model.step_between_refits) are not saved: a restored
+  // series refits at its first new record and starts them again.
+  step_.clear();
+  fit_weights_.clear();
   const bool has_origin = r.boolean();
   const std::int64_t origin = r.i64();
   origin_.reset();
