@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <cstdint>
 #include <limits>
 
 #include "series/design.h"
@@ -43,17 +44,7 @@ bool SeriesModel::ready() const {
 
 std::optional<TimePoint> SeriesModel::last_time() const {
   if (records_.empty()) return std::nullopt;
-  return records_.row(records_.size() - 1)->time;
-}
-
-std::vector<double> SeriesModel::covariates_of(const Observation& obs) const {
-  std::vector<double> values;
-  values.reserve(settings_->model.covariates.size());
-  for (const std::string& name : settings_->model.covariates) {
-    const double* v = obs.covariate(name);
-    values.push_back(v ? *v : std::numeric_limits<double>::quiet_NaN());
-  }
-  return values;
+  return newest_;
 }
 
 double SeriesModel::row_for(TimePoint time, double exposure, const double* covariates,
@@ -63,13 +54,39 @@ double SeriesModel::row_for(TimePoint time, double exposure, const double* covar
 }
 
 Prediction SeriesModel::predict(const Observation& obs, bool allow_screen) const {
-  const std::vector<double> cov = covariates_of(obs);
-  Eigen::RowVectorXd x(p_);
-  const double offset = row_for(obs.time, obs.exposure, cov.data(), x);
+  // No allocation per record for the usual model sizes: the design row, the
+  // covariates and Cov * x live on the stack (heap beyond kStackColumns).
+  // The products are Eigen's, on aligned maps of dynamic size, so they run
+  // the same kernels in the same order as on heap vectors: the same bits.
+  constexpr std::size_t kStackColumns = 16;
+  alignas(64) double x_stack[kStackColumns];
+  alignas(64) double cx_stack[kStackColumns];
+  double cov_stack[kStackColumns];
+  std::vector<double> heap;
+  const std::size_t columns = static_cast<std::size_t>(p_);
+  const std::size_t covariates = settings_->model.covariates.size();
+  double* x_data = x_stack;
+  double* cx_data = cx_stack;
+  double* cov = cov_stack;
+  if (columns > kStackColumns || covariates > kStackColumns) {
+    heap.resize(2 * columns + covariates + 8);
+    // Aligned16 below: start both vectors on a 16-byte boundary.
+    double* base = heap.data() + (reinterpret_cast<std::uintptr_t>(heap.data()) % 16 == 0 ? 0 : 1);
+    x_data = base;
+    cx_data = base + columns + (columns % 2);
+    cov = cx_data + columns + (columns % 2);
+  }
+  for (std::size_t i = 0; i < covariates; ++i) {
+    const double* v = obs.covariate(settings_->model.covariates[i]);
+    cov[i] = v ? *v : std::numeric_limits<double>::quiet_NaN();
+  }
+  Eigen::Map<Eigen::RowVectorXd, Eigen::Aligned16> x(x_data, p_);
+  const double offset = row_for(obs.time, obs.exposure, cov, x);
 
   Prediction out;
   const double linear = x.dot(fit_.coefficients);
-  const Eigen::VectorXd cx = fit_.covariance * x.transpose();
+  Eigen::Map<Eigen::VectorXd, Eigen::Aligned16> cx(cx_data, p_);
+  cx.noalias() = fit_.covariance * x.transpose();
   out.predictor.eta_mean = linear + offset;
   out.predictor.eta_variance = std::max(0.0, x.dot(cx));
   out.noise.family = settings_->model.family;
@@ -84,6 +101,9 @@ Prediction SeriesModel::predict(const Observation& obs, bool allow_screen) const
   options.quadrature_nodes = a.quadrature_nodes;
   options.alpha = a.alpha;
   options.screen = allow_screen && a.screen;
+  // The engine refits on doubt unless both floors exceed this (engine.h):
+  // the screen's cheapest floors must not make it refit more often.
+  if (settings_->model.refit_on_doubt && since_refit_ > 0) options.wanted_floor = settings_->model.doubt_factor * a.alpha;
   if (a.method == bounds::Method::simulate) {
     bounds::Rng rng = bounds::Rng::for_record(a.seed, id_, obs.time.time_since_epoch().count());
     out.bounds = bounds::evaluate(out.predictor, out.noise, obs.count, options, &rng);
@@ -116,6 +136,7 @@ void SeriesModel::learn(const Observation& obs, double weight) {
   const std::optional<std::size_t> limit = settings_->model.window.records;
   if (limit && *limit > 0 && records_.size() >= *limit) drop_oldest(records_.size() - *limit + 1);
   *records_.push_back() = Stored{obs.time, obs.count, obs.exposure, weight};
+  newest_ = obs.time;
   if (!settings_->model.covariates.empty()) {
     double* row = covariate_values_.push_back();
     for (const std::string& name : settings_->model.covariates) {

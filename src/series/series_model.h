@@ -58,7 +58,10 @@ class SeriesModel {
   // With `allow_screen` and alert.screen on, a record that provably raises
   // no bound alert may come back with bounds.screened set (no integer
   // bounds; see bounds::Bounds); calling again without it gives the full
-  // bounds of the same record (the draws are seeded per record).
+  // bounds of the same record (the draws are seeded per record). While
+  // model.refit_on_doubt may act (records learned since the last refit), the
+  // screen keeps a settled record's floors above model.doubt_factor * alpha
+  // whenever its exact tails would (bounds::Options::wanted_floor).
   Prediction predict(const Observation& obs, bool allow_screen = false) const;
 
   // Adds `obs` to the training history, trims the window, refits if due.
@@ -144,7 +147,6 @@ class SeriesModel {
   Eigen::VectorXd resistant_weights(const glm::FitResult& fit, double* gamma = nullptr) const;
   double row_for(TimePoint time, double exposure, const double* covariates,
                  RowRef row) const;
-  std::vector<double> covariates_of(const Observation& obs) const;
 
   std::string id_;
   const SeriesSettings* settings_;
@@ -170,6 +172,10 @@ class SeriesModel {
   void fill_season_cache();
   void push_season_values(TimePoint time);
   std::size_t since_refit_ = 0;
+  // The newest record's time (when records_ is not empty), kept beside the
+  // rest of the model: last_time() is asked for every record, and reading
+  // the ring's far end was a cache miss per record.
+  TimePoint newest_{};
 
   glm::FitResult fit_;
   bool has_fit_ = false;

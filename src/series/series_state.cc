@@ -203,6 +203,7 @@ void SeriesModel::load_state(StateReader& r) {
       for (std::uint64_t c = 0; c < k; ++c) cov[c] = r.f64();
     }
   }
+  if (!records_.empty()) newest_ = records_.row(records_.size() - 1)->time;
   load_fit(r, fit_, p_);
 }
 
