@@ -5,7 +5,7 @@
 #include <limits>
 
 #include "series/design.h"
-#include "series/resistant_dispersion.h"
+#include "series/refit_work.h"
 
 namespace tallyd {
 namespace {
@@ -190,14 +190,18 @@ void SeriesModel::refit() {
   // the baseline up before they have been judged a few more times.
   const std::size_t guard = settings_->model.guard_records;
   if (records_.size() <= guard) return;
-  build_design(X_, y_, offset_, weights_, records_.size() - guard);
+  // Built, used and freed here, so a series between refits holds only its
+  // history and its fit (an n x p design would be most of its memory).
+  RefitWork work;
+  build_design(work.X, work.y, work.offset, work.weights, records_.size() - guard);
+  work.ready();
 
   glm::FitOptions options = fit_options();
   options.null_deviance = false;  // not needed for judging; fit_report() asks for it
   if (has_fit_ && std::isfinite(fit_.theta)) options.start_theta = fit_.theta;
   const Eigen::VectorXd* start = has_fit_ ? &fit_.coefficients : nullptr;
 
-  glm::FitResult result = glm::fit_glm(X_, y_, offset_, weights_, options, start, true);
+  glm::FitResult result = fit_window(work, work.weights, options, start);
   ++fits_done_;
   last_fit_status_ = result.status;
   last_fit_note_ = result.note;
@@ -213,118 +217,22 @@ void SeriesModel::refit() {
     // outbreak records fall below the threshold (masking).
     bool corrected = false;
     for (std::size_t round = 0; round < settings_->model.reweight_rounds; ++round) {
-      Eigen::VectorXd resistant = resistant_weights(result);
+      Eigen::VectorXd resistant = resistant_weights(settings_->model, work, result);
       if (resistant.size() == 0) break;
-      glm::FitResult next = glm::fit_glm(X_, y_, offset_, resistant, options, &result.coefficients, true);
+      glm::FitResult next = fit_window(work, resistant, options, &result.coefficients);
       ++fits_done_;
       if (next.status != glm::FitStatus::ok) break;
       result = std::move(next);
-      correct_resistant_fit(result);
+      correct_resistant_fit(settings_->model, work, result);
       corrected = true;
     }
-    if (!corrected) correct_resistant_fit(result);
+    if (!corrected) correct_resistant_fit(settings_->model, work, result);
   }
   if (result.status == glm::FitStatus::ok ||
       (result.status == glm::FitStatus::not_converged && !has_fit_)) {
     fit_ = std::move(result);
     has_fit_ = true;
   }
-  release_workspace();
-}
-
-void SeriesModel::correct_resistant_fit(glm::FitResult& result) const {
-  // The weighted Pearson statistic of the resistant fit lacks the largest
-  // residuals, so its quasi-Poisson phi runs low even with no outbreak;
-  // divide by the expected shrinkage (series/resistant_dispersion.h). The
-  // factor is an average over windows with and without a down-weighted
-  // record, so it applies to both (with none, the first fit is the
-  // resistant fit). Taking the first fit's phi instead would let past
-  // outbreaks widen every later bound, which the reweighting is there to
-  // prevent. With model.reweight_mean_correction (log link) the fitted mean
-  // is divided by its expected shrinkage likewise.
-  const ModelSpec& spec = settings_->model;
-  const bool quasi = spec.family == glm::Family::quasipoisson && result.dispersion > 0;
-  const bool mean_fix = spec.reweight_mean_correction && spec.link == glm::Link::log;
-  if (!quasi && !mean_fix) return;
-  // At the window's average fitted mean, and at the corrected phi (one
-  // step: the factor moves slowly with phi).
-  const Eigen::VectorXd eta = X_ * result.coefficients + offset_;
-  double mean_sum = 0;
-  for (Eigen::Index i = 0; i < eta.size(); ++i) mean_sum += glm::link_inv(spec.link, eta(i));
-  const double mean = mean_sum / static_cast<double>(eta.size());
-  const double threshold = spec.reweight_threshold;
-  double index = 1;  // the noise's dispersion index at the mean
-  if (quasi) index = result.dispersion / normal_reweighted_dispersion_factor(threshold);
-  else if (spec.family == glm::Family::negbin && std::isfinite(result.theta) && result.theta > 0)
-    index = 1 + mean / result.theta;
-  const ReweightedMoments moments = reweighted_moments(threshold, mean, index);
-  if (quasi) {
-    result.covariance /= moments.dispersion_factor;
-    result.dispersion /= moments.dispersion_factor;
-  }
-  if (mean_fix && moments.mean_factor > 0 && result.coefficients.size() > 0)
-    result.coefficients(0) -= std::log(moments.mean_factor);  // column 0 is the intercept (series/design.h)
-}
-
-void SeriesModel::release_workspace() {
-  // An n x p design per idle series would be most of its memory (window 156,
-  // 8 coefficients: ~10 KiB of ~16); rebuilding it costs a few allocations
-  // next to an IRLS fit.
-  X_.resize(0, 0);
-  y_.resize(0);
-  offset_.resize(0);
-  weights_.resize(0);
-}
-
-Eigen::VectorXd SeriesModel::resistant_weights(const glm::FitResult& fit) const {
-  const Eigen::Index n = X_.rows();
-  const glm::Family family = settings_->model.family;
-  const glm::Link link = settings_->model.link;
-  const double phi = family == glm::Family::quasipoisson && std::isfinite(fit.dispersion) && fit.dispersion > 0
-                         ? fit.dispersion
-                         : 1.0;
-  const bool nb = family == glm::Family::negbin && std::isfinite(fit.theta) && fit.theta > 0;
-  const double threshold = settings_->model.reweight_threshold;
-  Eigen::VectorXd w = weights_;
-  bool any = false;
-  // The linear predictors and the quadratic forms x' Cov x of all records in
-  // two matrix products, rather than a small product per record.
-  Eigen::VectorXd eta = X_ * fit.coefficients;
-  eta += offset_;
-  const Eigen::MatrixXd xc = X_ * fit.covariance;
-  const Eigen::VectorXd quadratic = xc.cwiseProduct(X_).rowwise().sum();
-  for (Eigen::Index i = 0; i < n; ++i) {
-    if (weights_(i) <= 0) continue;
-    const double mu = glm::link_inv(link, eta(i));
-    if (!(mu > 1e-12)) continue;
-    const double y = y_(i);
-    // The Anscombe residual has the sign of y - mu: a record at or below its
-    // mean cannot pass a non-negative threshold.
-    if (threshold >= 0 && !(y > mu)) continue;
-    const double variance = nb ? mu + mu * mu / fit.theta : mu;
-    // Under the log link d mu / d eta is exp(eta) again: reuse it.
-    const double d = link == glm::Link::log ? mu : glm::mu_eta(link, eta(i));
-    // Leverage h = w x' (X'WX)^-1 x with Cov = phi (X'WX)^-1 for quasi-Poisson.
-    const double working = weights_(i) * d * d / variance;
-    const double h = std::clamp(working * quadratic(i) / phi, 0.0, 0.99);
-    // Poisson Anscombe residual; its variance is about the dispersion index
-    // (phi, or 1 + mu / theta for NB2). mu^(1/6) is the square root of the
-    // square root of mu^(2/3).
-    const double mu23 = std::cbrt(mu * mu);
-    const double anscombe = 1.5 * (std::cbrt(y * y) - mu23) / std::sqrt(std::sqrt(mu23));
-    const double index = nb ? 1 + mu / fit.theta : phi;
-    const double s = anscombe / std::sqrt(index * (1 - h));
-    if (s > threshold) {
-      w(i) = weights_(i) / (s * s);
-      any = true;
-    }
-  }
-  if (!any) return {};
-  // gamma: keep the total prior weight (Farrington et al. 1996).
-  const double total = w.sum();
-  if (!(total > 0)) return {};
-  w *= weights_.sum() / total;
-  return w;
 }
 
 glm::FitResult SeriesModel::fit_report() const {

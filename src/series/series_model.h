@@ -111,17 +111,6 @@ class SeriesModel {
   void build_design(Eigen::MatrixXd& X, Eigen::VectorXd& y, Eigen::VectorXd& offset,
                     Eigen::VectorXd& weights, std::size_t rows) const;
   glm::FitOptions fit_options() const;
-  // Prior weights for the resistant refit after `fit` of the current design
-  // (X_, y_, offset_, weights_): records with standardized Anscombe residual
-  // above model.reweight_threshold get weight / residual^2, all rescaled to
-  // the same total. Empty when no record is down-weighted.
-  // Divides a resistant quasi-Poisson fit's phi (and covariance) by the
-  // expected shrinkage of the weighted Pearson statistic, and with
-  // model.reweight_mean_correction (log link) its mean by the expected
-  // shrinkage of the weighted mean (series/resistant_dispersion.h). Reads the
-  // design of the current refit.
-  void correct_resistant_fit(glm::FitResult& result) const;
-  Eigen::VectorXd resistant_weights(const glm::FitResult& fit) const;
   double row_for(TimePoint time, double exposure, const double* covariates,
                  RowRef row) const;
   std::vector<double> covariates_of(const Observation& obs) const;
@@ -156,14 +145,6 @@ class SeriesModel {
   glm::FitStatus last_fit_status_ = glm::FitStatus::failed;
   std::string last_fit_note_ = "not fitted yet";
   std::uint64_t fits_done_ = 0;
-
-  // Frees the refit scratch below.
-  void release_workspace();
-
-  // Refit scratch: built, used and freed within refit(), so a series between
-  // refits holds only its history and its fit.
-  Eigen::MatrixXd X_;
-  Eigen::VectorXd y_, offset_, weights_;
 };
 
 }  // namespace tallyd
