@@ -27,6 +27,47 @@ constexpr double kLargestWeight = 1e100;
 // fit is left to fit_glm, which reports it.
 constexpr double kDriftPerIteration = 0.5;
 
+// out[k] = sum_i w_i x0_i xk_i for the M columns x0 = columns[0], ...,
+// columns[M - 1]: the weighted column x0 is formed and each of its packets
+// used for all M sums while loaded, where M separate dot products would
+// load it M times. Eigen's packets (SSE2, AVX or NEON, as compiled), with
+// the tail and the lanes summed last: the order of the sums differs from a
+// dot product's, by rounding only.
+template <int M>
+void cross_products_of(const double* w, const double* const* columns, Eigen::Index n, double* out) {
+  using Packet = Eigen::internal::packet_traits<double>::type;
+  constexpr Eigen::Index kLanes = Eigen::internal::unpacket_traits<Packet>::size;
+  Packet sums[M];
+  for (int k = 0; k < M; ++k) sums[k] = Eigen::internal::pset1<Packet>(0.0);
+  Eigen::Index i = 0;
+  for (; i + kLanes <= n; i += kLanes) {
+    const Packet a = Eigen::internal::pmul(Eigen::internal::ploadu<Packet>(w + i),
+                                           Eigen::internal::ploadu<Packet>(columns[0] + i));
+    for (int k = 0; k < M; ++k)
+      sums[k] = Eigen::internal::padd(sums[k], Eigen::internal::pmul(a, Eigen::internal::ploadu<Packet>(columns[k] + i)));
+  }
+  for (int k = 0; k < M; ++k) {
+    double total = Eigen::internal::predux(sums[k]);
+    for (Eigen::Index t = i; t < n; ++t) total += w[t] * columns[0][t] * columns[k][t];
+    out[k] = total;
+  }
+}
+
+void cross_products(int m, const double* w, const double* const* columns, Eigen::Index n,
+                    double* out) {
+  switch (m) {
+    case 1: cross_products_of<1>(w, columns, n, out); return;
+    case 2: cross_products_of<2>(w, columns, n, out); return;
+    case 3: cross_products_of<3>(w, columns, n, out); return;
+    case 4: cross_products_of<4>(w, columns, n, out); return;
+    case 5: cross_products_of<5>(w, columns, n, out); return;
+    case 6: cross_products_of<6>(w, columns, n, out); return;
+    case 7: cross_products_of<7>(w, columns, n, out); return;
+    case 8: cross_products_of<8>(w, columns, n, out); return;
+    default: cross_products_of<SmallFit::kMaxColumns + 1>(w, columns, n, out); return;
+  }
+}
+
 double relative_change(double dev, double dev_old) {
   return (dev - dev_old) / (std::abs(dev) + 0.1);
 }
@@ -48,8 +89,11 @@ void SmallFit::use(const Eigen::MatrixXd& X, const Eigen::VectorXd& y,
   offset_ = &offset;
   has_estimate_ = false;
   const Eigen::Index n = X.rows();
-  design_ok_ = y.size() == n && offset.size() == n && X.allFinite() && offset.allFinite() &&
-               y.allFinite() && (y.array() >= 0).all();
+  // x * 0 is 0 for every finite x and NaN for inf and NaN: one vectorised
+  // sum per array says whether all are finite.
+  const auto finite = [](const auto& a) { return (a.array() * 0.0).sum() == 0.0; };
+  design_ok_ = y.size() == n && offset.size() == n && finite(X) && finite(offset) && finite(y) &&
+               (y.array() >= 0).all();
   // log y once for every fit of this design (irls.cc does it once per fit),
   // and once per distinct small count: a window holds a few dozen.
   constexpr int kTable = 256;
@@ -119,11 +163,16 @@ void SmallFit::pass(const Column& beta, const Eigen::VectorXd& weights, bool reu
   // instruction.
   working_ = weights.cwiseProduct(mu_next_);
   response_ = (eta_next_ - offset).array() + (y - mu_next_).array() / mu_next_.array();
-  weighted_.noalias() = working_.asDiagonal() * X;
+  // Row j of X'WX (from the diagonal) and X'Wz in one sweep over the records.
+  std::array<const double*, kMaxColumns + 1> columns{};
+  for (int k = 0; k < p; ++k) columns[static_cast<std::size_t>(k)] = X.col(k).data();
+  columns[static_cast<std::size_t>(p)] = response_.data();
+  std::array<double, kMaxColumns + 1> row{};
   for (int j = 0; j < p; ++j) {
-    s.rhs[static_cast<std::size_t>(j)] = weighted_.col(j).dot(response_);
+    cross_products(p + 1 - j, working_.data(), columns.data() + j, n, row.data());
     for (int k = j; k < p; ++k)
-      s.gram[static_cast<std::size_t>(j * kMaxColumns + k)] = weighted_.col(j).dot(X.col(k));
+      s.gram[static_cast<std::size_t>(j * kMaxColumns + k)] = row[static_cast<std::size_t>(k - j)];
+    s.rhs[static_cast<std::size_t>(j)] = row[static_cast<std::size_t>(p - j)];
   }
   s.valid = true;
   s.deviance = dev;

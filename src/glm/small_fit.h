@@ -95,7 +95,6 @@ class SmallFit {
   Eigen::VectorXd log_y_;
   Eigen::VectorXd eta_, mu_, eta_next_, mu_next_;
   Eigen::VectorXd working_, response_;  // w mu and the working response of a pass
-  Eigen::MatrixXd weighted_;            // diag(working_) X
   Square chol_{};
   bool has_estimate_ = false;
   Column estimate_{};
