@@ -75,15 +75,17 @@ Eigen::VectorXd resistant_weights(const ModelSpec& spec, const RefitWork& work,
     const double h = std::clamp(working * quadratic(i) / phi, 0.0, 0.99);
     const double index = nb ? 1 + mu / fit.theta : phi;
     const double spread = std::sqrt(index * (1 - h));
-    // s (below) > threshold means y^(2/3) > mu^(2/3) + threshold spread
-    // mu^(1/6) / 1.5. A count whose square is below the cube of that by far
-    // more than rounding cannot pass: most records above their mean are
-    // such, and skip the two cube roots. Under the log link mu^(1/3) is
-    // exp(eta / 3), an exp instead of a cube root, within a few ulps.
-    if (link == glm::Link::log && threshold >= 0) {
-      const double third = std::exp((*eta)(i) / 3);
-      const double cut = third * third + threshold * spread * std::sqrt(third) / 1.5;
-      if (y * y < cut * cut * cut * (1 - 1e-9)) continue;
+    // s (below) > threshold means y^(2/3) > mu^(2/3) + c mu^(1/6) with
+    // c = threshold spread / 1.5, i.e. y^2 above the cube of the right side:
+    //   mu^2 + 3 c mu^(3/2) + 3 c^2 mu + c^3 mu^(1/2),
+    // which takes one square root. A count whose square is below that by
+    // far more than rounding cannot pass: most records above their mean are
+    // such, and skip the two cube roots.
+    if (threshold >= 0) {
+      const double c = threshold * spread / 1.5;
+      const double root_mu = std::sqrt(mu);
+      const double cut_cubed = mu * mu + 3 * c * mu * root_mu + 3 * c * c * mu + c * c * c * root_mu;
+      if (y * y < cut_cubed * (1 - 1e-9)) continue;
     }
     // Poisson Anscombe residual; its variance is about the dispersion index
     // (phi, or 1 + mu / theta for NB2). mu^(1/6) is the square root of the
