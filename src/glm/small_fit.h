@@ -7,11 +7,11 @@
 // convergence rule |dev - dev_old| / (|dev| + 0.1) < tolerance, the same
 // step-halving and the same normal-equations bounds (glm/wls.h). Each pass
 // computes, for one coefficient vector, the linear predictors, the means,
-// the deviance and X'WX, X'Wz at those means: if the
-// step is accepted they are the next step's system, and at convergence
-// X'WX is the information the covariance is taken from. The results equal
-// fit_glm's up to rounding (sums taken in another order; tests/glm/
-// small_fit_test.cc checks 1e-10 relative).
+// the deviance and X'WX, X'Wz at those means: if the step is accepted they
+// are the next step's system, and at convergence X'WX is the information
+// the covariance is taken from. The results equal fit_glm's up to rounding
+// (sums taken in another order; tests/glm/small_fit_test.cc asks 1e-10 of
+// the largest coefficient).
 //
 // Whenever fit_glm would do anything else (a start giving invalid means,
 // a column failing the normal-equations bounds, so that the QR would decide
