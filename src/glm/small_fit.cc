@@ -345,4 +345,14 @@ bool SmallFit::fit(const Eigen::VectorXd& weights, const FitOptions& options,
   return true;
 }
 
+FitResult fit_fast_or_general(SmallFit& small, const Eigen::MatrixXd& X, const Eigen::VectorXd& y,
+                              const Eigen::VectorXd& offset, const Eigen::VectorXd& weights,
+                              const FitOptions& options, const Eigen::VectorXd* start) {
+  if (start != nullptr && SmallFit::applies(options, static_cast<int>(X.cols()))) {
+    FitResult result;
+    if (small.fit(weights, options, *start, result)) return result;
+  }
+  return fit_glm(X, y, offset, weights, options, start, true);
+}
+
 }  // namespace tallyd::glm

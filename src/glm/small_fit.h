@@ -100,4 +100,11 @@ class SmallFit {
   Column estimate_{};
 };
 
+// fit_glm(X, y, offset, weights, options, start, true) through `small` when
+// it applies (a warm start, and fit() accepts), else fit_glm itself.
+// Precondition: small.use(X, y, offset) was called with these arrays.
+FitResult fit_fast_or_general(SmallFit& small, const Eigen::MatrixXd& X, const Eigen::VectorXd& y,
+                              const Eigen::VectorXd& offset, const Eigen::VectorXd& weights,
+                              const FitOptions& options, const Eigen::VectorXd* start);
+
 }  // namespace tallyd::glm

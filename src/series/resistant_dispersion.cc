@@ -29,6 +29,13 @@ double normal_reweighted_mean_factor(double threshold, double mean, double phi) 
   return 1 + std::sqrt(phi * mean) * vz / (mean * ev);
 }
 
+bool anscombe_surely_within(double y, double mu, double spread, double threshold) {
+  const double c = threshold * spread / 1.5;
+  const double root_mu = std::sqrt(mu);
+  const double cut_cubed = mu * mu + 3 * c * mu * root_mu + 3 * c * c * mu + c * c * c * root_mu;
+  return y * y < cut_cubed * (1 - 1e-9);
+}
+
 ReweightedMoments reweighted_moments(double threshold, double mean, double phi) {
   if (!(threshold < HUGE_VAL) || !(mean > 0) || !(phi > 0) || !std::isfinite(mean) || !std::isfinite(phi))
     return {1.0, 1.0};

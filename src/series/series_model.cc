@@ -2,10 +2,12 @@
 
 #include <algorithm>
 #include <cmath>
+#include <cstdint>
 #include <limits>
 
+#include "glm/small_fit.h"
 #include "series/design.h"
-#include "series/refit_work.h"
+#include "series/resistant_dispersion.h"
 
 namespace tallyd {
 namespace {
@@ -24,7 +26,8 @@ SeriesModel::SeriesModel(std::string id, const SeriesSettings& settings)
       records_(1, window_rows(settings.model)),
       covariate_values_(settings.model.covariates.size(), window_rows(settings.model)),
       season_values_(static_cast<std::size_t>(season_column_count(settings.model)), window_rows(settings.model)),
-      seasons_per_row_(season_column_count(settings.model)) {}
+      seasons_per_row_(season_column_count(settings.model)),
+      fit_weights_(1, window_rows(settings.model)) {}
 
 std::optional<std::string> SeriesModel::missing_covariate(const Observation& obs) const {
   for (const std::string& name : settings_->model.covariates)
@@ -42,17 +45,7 @@ bool SeriesModel::ready() const {
 
 std::optional<TimePoint> SeriesModel::last_time() const {
   if (records_.empty()) return std::nullopt;
-  return records_.row(records_.size() - 1)->time;
-}
-
-std::vector<double> SeriesModel::covariates_of(const Observation& obs) const {
-  std::vector<double> values;
-  values.reserve(settings_->model.covariates.size());
-  for (const std::string& name : settings_->model.covariates) {
-    const double* v = obs.covariate(name);
-    values.push_back(v ? *v : std::numeric_limits<double>::quiet_NaN());
-  }
-  return values;
+  return newest_;
 }
 
 double SeriesModel::row_for(TimePoint time, double exposure, const double* covariates,
@@ -62,13 +55,39 @@ double SeriesModel::row_for(TimePoint time, double exposure, const double* covar
 }
 
 Prediction SeriesModel::predict(const Observation& obs, bool allow_screen) const {
-  const std::vector<double> cov = covariates_of(obs);
-  Eigen::RowVectorXd x(p_);
-  const double offset = row_for(obs.time, obs.exposure, cov.data(), x);
+  // No allocation per record for the usual model sizes: the design row, the
+  // covariates and Cov * x live on the stack (heap beyond kStackColumns).
+  // The products are Eigen's, on aligned maps of dynamic size, so they run
+  // the same kernels in the same order as on heap vectors: the same bits.
+  constexpr std::size_t kStackColumns = 16;
+  alignas(64) double x_stack[kStackColumns];
+  alignas(64) double cx_stack[kStackColumns];
+  double cov_stack[kStackColumns];
+  std::vector<double> heap;
+  const std::size_t columns = static_cast<std::size_t>(p_);
+  const std::size_t covariates = settings_->model.covariates.size();
+  double* x_data = x_stack;
+  double* cx_data = cx_stack;
+  double* cov = cov_stack;
+  if (columns > kStackColumns || covariates > kStackColumns) {
+    heap.resize(2 * columns + covariates + 8);
+    // Aligned16 below: start both vectors on a 16-byte boundary.
+    double* base = heap.data() + (reinterpret_cast<std::uintptr_t>(heap.data()) % 16 == 0 ? 0 : 1);
+    x_data = base;
+    cx_data = base + columns + (columns % 2);
+    cov = cx_data + columns + (columns % 2);
+  }
+  for (std::size_t i = 0; i < covariates; ++i) {
+    const double* v = obs.covariate(settings_->model.covariates[i]);
+    cov[i] = v ? *v : std::numeric_limits<double>::quiet_NaN();
+  }
+  Eigen::Map<Eigen::RowVectorXd, Eigen::Aligned16> x(x_data, p_);
+  const double offset = row_for(obs.time, obs.exposure, cov, x);
 
   Prediction out;
   const double linear = x.dot(fit_.coefficients);
-  const Eigen::VectorXd cx = fit_.covariance * x.transpose();
+  Eigen::Map<Eigen::VectorXd, Eigen::Aligned16> cx(cx_data, p_);
+  cx.noalias() = fit_.covariance * x.transpose();
   out.predictor.eta_mean = linear + offset;
   out.predictor.eta_variance = std::max(0.0, x.dot(cx));
   out.noise.family = settings_->model.family;
@@ -83,6 +102,9 @@ Prediction SeriesModel::predict(const Observation& obs, bool allow_screen) const
   options.quadrature_nodes = a.quadrature_nodes;
   options.alpha = a.alpha;
   options.screen = allow_screen && a.screen;
+  // The engine refits on doubt unless both floors exceed this (engine.h):
+  // the screen's cheapest floors must not make it refit more often.
+  if (settings_->model.refit_on_doubt && since_refit_ > 0) options.wanted_floor = settings_->model.doubt_factor * a.alpha;
   if (a.method == bounds::Method::simulate) {
     bounds::Rng rng = bounds::Rng::for_record(a.seed, id_, obs.time.time_since_epoch().count());
     out.bounds = bounds::evaluate(out.predictor, out.noise, obs.count, options, &rng);
@@ -115,6 +137,7 @@ void SeriesModel::learn(const Observation& obs, double weight) {
   const std::optional<std::size_t> limit = settings_->model.window.records;
   if (limit && *limit > 0 && records_.size() >= *limit) drop_oldest(records_.size() - *limit + 1);
   *records_.push_back() = Stored{obs.time, obs.count, obs.exposure, weight};
+  newest_ = obs.time;
   if (!settings_->model.covariates.empty()) {
     double* row = covariate_values_.push_back();
     for (const std::string& name : settings_->model.covariates) {
@@ -125,14 +148,119 @@ void SeriesModel::learn(const Observation& obs, double weight) {
   if (seasons_per_row_ > 0) push_season_values(obs.time);
   trim_window(obs.time);
   ++since_refit_;
+  // A restored series has no step sums: it refits at its first record.
+  const bool steps = steps_on();
   if (records_.size() >= min_history() + settings_->model.guard_records &&
       (since_refit_ >= settings_->model.refit_every || !has_fit_ ||
-       records_.size() < settings_->model.cadence_from)) {
+       records_.size() < settings_->model.cadence_from || (steps && !step_.active()))) {
     refit();
+  } else if (steps && step_.active()) {
+    step_forward();
+  }
+}
+
+bool SeriesModel::steps_on() const {
+  const ModelSpec& spec = settings_->model;
+  return spec.step_between_refits && spec.refit_every > 1 && spec.link == glm::Link::log;
+}
+
+double SeriesModel::stored_row(std::size_t i) {
+  const Stored& r = *records_.row(i);
+  const double* cov = covariate_values_.row(i);
+  if (!season_cache_ok()) return row_for(r.time, r.exposure, cov, step_x_);
+  const DesignInput in{r.time, origin_.value_or(r.time), r.exposure, cov};
+  return design_row(settings_->model, in, season_values_.row(i), step_x_);
+}
+
+void SeriesModel::start_steps(const Eigen::VectorXd& fit_weights, const Correction& correction, double gamma) {
+  step_correction_ = correction;
+  step_gamma_ = gamma;
+  Eigen::VectorXd beta_star = fit_.coefficients;
+  if (beta_star.size() > 0) beta_star(0) += correction.mean_shift;  // the resistant fit's own intercept
+  step_.reset(beta_star, settings_->model.family, fit_.theta);
+  step_x_.resize(p_);
+  fit_weights_.clear();
+  for (Eigen::Index i = 0; i < X_.rows(); ++i) {
+    const Eigen::RowVectorXd row = X_.row(i);
+    step_.account(row.data(), offset_(i), y_(i), fit_weights(i), 1);
+    *fit_weights_.push_back() = fit_weights(i);
+  }
+  const std::size_t n = step_.rows();
+  step_phi_start_ = n > static_cast<std::size_t>(p_) ? step_.pearson() / static_cast<double>(n - p_) : 1;
+  if (!(step_phi_start_ > 0)) step_phi_start_ = 1;
+}
+
+double SeriesModel::step_weight(double offset, double y, double prior) const {
+  const ModelSpec& spec = settings_->model;
+  if (!spec.reweight || !(prior > 0)) return prior;
+  // As resistant_weights, against the published fit.
+  const double eta = step_x_.dot(fit_.coefficients) + offset;
+  const double mu = std::exp(eta);
+  if (!(mu > 1e-12) || !std::isfinite(mu)) return step_gamma_ * prior;
+  const double threshold = spec.reweight_threshold;
+  if (threshold >= 0 && !(y > mu)) return step_gamma_ * prior;
+  const double phi = spec.family == glm::Family::quasipoisson && std::isfinite(fit_.dispersion) && fit_.dispersion > 0
+                         ? fit_.dispersion
+                         : 1.0;
+  const bool nb = spec.family == glm::Family::negbin && std::isfinite(fit_.theta) && fit_.theta > 0;
+  const double variance = nb ? mu + mu * mu / fit_.theta : mu;
+  const double quadratic = step_x_.dot(fit_.covariance * step_x_.transpose());
+  const double h = std::clamp(prior * mu * mu / variance * quadratic / phi, 0.0, 0.99);
+  const double mu23 = std::cbrt(mu * mu);
+  const double anscombe = 1.5 * (std::cbrt(y * y) - mu23) / std::sqrt(std::sqrt(mu23));
+  const double index = nb ? 1 + mu / fit_.theta : phi;
+  const double z = anscombe / std::sqrt(index * (1 - h));
+  return step_gamma_ * (z > threshold ? prior / (z * z) : prior);
+}
+
+void SeriesModel::step_forward() {
+  const std::size_t guard = settings_->model.guard_records;
+  while (fit_weights_.size() + guard < records_.size()) {
+    const std::size_t i = fit_weights_.size();
+    const double offset = stored_row(i);
+    const Stored& r = *records_.row(i);
+    const double y = static_cast<double>(r.count);
+    const double w = step_weight(offset, y, r.weight);
+    step_.account(step_x_.data(), offset, y, w, 1);
+    *fit_weights_.push_back() = w;
+  }
+  Eigen::VectorXd beta;
+  Eigen::MatrixXd inverse;
+  if (!step_.solve(beta, inverse)) {
+    refit();  // no step from these sums (an aliased column): the full fit decides
+    return;
+  }
+  const std::size_t n = step_.rows();
+  // Far from beta*, or on a window that no longer fits it: refit fully.
+  const double scale = settings_->model.family == glm::Family::quasipoisson ? step_phi_start_ : 1.0;
+  const double phi_now = n > static_cast<std::size_t>(p_) ? step_.pearson() / static_cast<double>(n - p_) : 0;
+  if (!(step_.distance2(beta) <= kMaxStepDistance * kMaxStepDistance * scale) ||
+      !(phi_now <= kMaxStepDispersionGrowth * step_phi_start_)) {
+    refit();
+    return;
+  }
+  fit_.coefficients = beta;
+  if (fit_.coefficients.size() > 0) fit_.coefficients(0) -= step_correction_.mean_shift;
+  fit_.n = static_cast<int>(n);
+  fit_.df_residual = static_cast<int>(n) - p_;
+  if (settings_->model.family == glm::Family::quasipoisson && fit_.df_residual > 0) {
+    fit_.dispersion = step_.pearson() / fit_.df_residual / step_correction_.dispersion_divisor;
+    fit_.covariance = fit_.dispersion * inverse;
+  } else {
+    fit_.covariance = inverse;
   }
 }
 
 void SeriesModel::drop_oldest(std::size_t rows) {
+  if (step_.active()) {
+    // The records leaving the window take their terms out of the sums.
+    const std::size_t in_fit = std::min(rows, fit_weights_.size());
+    for (std::size_t i = 0; i < in_fit; ++i) {
+      const double offset = stored_row(i);
+      step_.account(step_x_.data(), offset, static_cast<double>(records_.row(i)->count), *fit_weights_.row(i), -1);
+    }
+    fit_weights_.pop_front(in_fit);
+  }
   records_.pop_front(rows);
   if (!settings_->model.covariates.empty()) covariate_values_.pop_front(rows);
   if (seasons_per_row_ > 0) {
@@ -190,23 +318,28 @@ void SeriesModel::refit() {
   // the baseline up before they have been judged a few more times.
   const std::size_t guard = settings_->model.guard_records;
   if (records_.size() <= guard) return;
-  // Built, used and freed here, so a series between refits holds only its
-  // history and its fit (an n x p design would be most of its memory).
-  RefitWork work;
-  build_design(work.X, work.y, work.offset, work.weights, records_.size() - guard);
-  work.ready();
+  build_design(X_, y_, offset_, weights_, records_.size() - guard);
 
   glm::FitOptions options = fit_options();
   options.null_deviance = false;  // not needed for judging; fit_report() asks for it
   if (has_fit_ && std::isfinite(fit_.theta)) options.start_theta = fit_.theta;
   const Eigen::VectorXd* start = has_fit_ ? &fit_.coefficients : nullptr;
 
-  glm::FitResult result = fit_window(work, work.weights, options, start);
+  // Warm-started fits of a narrow log-link design take the one-pass path
+  // (glm/small_fit.h), which leaves every hard case to fit_glm.
+  glm::SmallFit small;
+  small.use(X_, y_, offset_);
+  glm::FitResult result = glm::fit_fast_or_general(small, X_, y_, offset_, weights_, options, start);
   ++fits_done_;
   last_fit_status_ = result.status;
   last_fit_note_ = result.note;
   // A failed fit keeps the previous coefficients; a non-converged one is used
   // only when there is nothing better.
+  const bool steps = steps_on();
+  Eigen::VectorXd fit_weights;
+  if (steps) fit_weights = weights_;
+  Correction correction;
+  double gamma = 1;
   if (result.status == glm::FitStatus::ok && settings_->model.reweight) {
     // Outbreak-resistant refit: down-weight outlying records and fit once
     // more from the previous fit (Farrington et al. 1996; Noufaily et al.
@@ -217,22 +350,136 @@ void SeriesModel::refit() {
     // outbreak records fall below the threshold (masking).
     bool corrected = false;
     for (std::size_t round = 0; round < settings_->model.reweight_rounds; ++round) {
-      Eigen::VectorXd resistant = resistant_weights(settings_->model, work, result);
+      double round_gamma = 1;
+      Eigen::VectorXd resistant = resistant_weights(result, &round_gamma);
       if (resistant.size() == 0) break;
-      glm::FitResult next = fit_window(work, resistant, options, &result.coefficients);
+      glm::FitResult next =
+          glm::fit_fast_or_general(small, X_, y_, offset_, resistant, options, &result.coefficients);
       ++fits_done_;
       if (next.status != glm::FitStatus::ok) break;
       result = std::move(next);
-      correct_resistant_fit(settings_->model, work, result);
+      correction = correct_resistant_fit(result);
       corrected = true;
+      if (steps) fit_weights = std::move(resistant);
+      gamma = round_gamma;
     }
-    if (!corrected) correct_resistant_fit(settings_->model, work, result);
+    if (!corrected) correction = correct_resistant_fit(result);
   }
-  if (result.status == glm::FitStatus::ok ||
-      (result.status == glm::FitStatus::not_converged && !has_fit_)) {
+  const bool converged = result.status == glm::FitStatus::ok;
+  if (converged || (result.status == glm::FitStatus::not_converged && !has_fit_)) {
     fit_ = std::move(result);
     has_fit_ = true;
   }
+  // Steps start only from a converged fit; otherwise the next record refits.
+  if (steps && converged) start_steps(fit_weights, correction, gamma);
+  else step_.clear();
+  release_workspace();
+}
+
+SeriesModel::Correction SeriesModel::correct_resistant_fit(glm::FitResult& result) const {
+  // The weighted Pearson statistic of the resistant fit lacks the largest
+  // residuals, so its quasi-Poisson phi runs low even with no outbreak;
+  // divide by the expected shrinkage (series/resistant_dispersion.h). The
+  // factor is an average over windows with and without a down-weighted
+  // record, so it applies to both (with none, the first fit is the
+  // resistant fit). Taking the first fit's phi instead would let past
+  // outbreaks widen every later bound, which the reweighting is there to
+  // prevent. With model.reweight_mean_correction (log link) the fitted mean
+  // is divided by its expected shrinkage likewise.
+  const ModelSpec& spec = settings_->model;
+  const bool quasi = spec.family == glm::Family::quasipoisson && result.dispersion > 0;
+  const bool mean_fix = spec.reweight_mean_correction && spec.link == glm::Link::log;
+  Correction applied;
+  if (!quasi && !mean_fix) return applied;
+  // At the window's average fitted mean, and at the corrected phi (one
+  // step: the factor moves slowly with phi).
+  const Eigen::VectorXd eta = X_ * result.coefficients + offset_;
+  double mean_sum = 0;
+  for (Eigen::Index i = 0; i < eta.size(); ++i) mean_sum += glm::link_inv(spec.link, eta(i));
+  const double mean = mean_sum / static_cast<double>(eta.size());
+  const double threshold = spec.reweight_threshold;
+  double index = 1;  // the noise's dispersion index at the mean
+  if (quasi) index = result.dispersion / normal_reweighted_dispersion_factor(threshold);
+  else if (spec.family == glm::Family::negbin && std::isfinite(result.theta) && result.theta > 0)
+    index = 1 + mean / result.theta;
+  const ReweightedMoments moments = reweighted_moments(threshold, mean, index);
+  if (quasi) {
+    result.covariance /= moments.dispersion_factor;
+    result.dispersion /= moments.dispersion_factor;
+    applied.dispersion_divisor = moments.dispersion_factor;
+  }
+  if (mean_fix && moments.mean_factor > 0 && result.coefficients.size() > 0) {
+    applied.mean_shift = std::log(moments.mean_factor);
+    result.coefficients(0) -= applied.mean_shift;  // column 0 is the intercept (series/design.h)
+  }
+  return applied;
+}
+
+void SeriesModel::release_workspace() {
+  // An n x p design per idle series would be most of its memory (window 156,
+  // 8 coefficients: ~10 KiB of ~16); rebuilding it costs a few allocations
+  // next to an IRLS fit.
+  X_.resize(0, 0);
+  y_.resize(0);
+  offset_.resize(0);
+  weights_.resize(0);
+}
+
+Eigen::VectorXd SeriesModel::resistant_weights(const glm::FitResult& fit, double* gamma) const {
+  const Eigen::Index n = X_.rows();
+  const glm::Family family = settings_->model.family;
+  const glm::Link link = settings_->model.link;
+  const double phi = family == glm::Family::quasipoisson && std::isfinite(fit.dispersion) && fit.dispersion > 0
+                         ? fit.dispersion
+                         : 1.0;
+  const bool nb = family == glm::Family::negbin && std::isfinite(fit.theta) && fit.theta > 0;
+  const double threshold = settings_->model.reweight_threshold;
+  Eigen::VectorXd w = weights_;
+  bool any = false;
+  // The linear predictors and the quadratic forms x' Cov x of all records in
+  // two matrix products, rather than a small product per record.
+  Eigen::VectorXd eta = X_ * fit.coefficients;
+  eta += offset_;
+  const Eigen::MatrixXd xc = X_ * fit.covariance;
+  const Eigen::VectorXd quadratic = xc.cwiseProduct(X_).rowwise().sum();
+  for (Eigen::Index i = 0; i < n; ++i) {
+    if (weights_(i) <= 0) continue;
+    const double mu = glm::link_inv(link, eta(i));
+    if (!(mu > 1e-12)) continue;
+    const double y = y_(i);
+    // The Anscombe residual has the sign of y - mu: a record at or below its
+    // mean cannot pass a non-negative threshold.
+    if (threshold >= 0 && !(y > mu)) continue;
+    const double variance = nb ? mu + mu * mu / fit.theta : mu;
+    // Under the log link d mu / d eta is exp(eta) again: reuse it.
+    const double d = link == glm::Link::log ? mu : glm::mu_eta(link, eta(i));
+    // Leverage h = w x' (X'WX)^-1 x with Cov = phi (X'WX)^-1 for quasi-Poisson.
+    const double working = weights_(i) * d * d / variance;
+    const double h = std::clamp(working * quadratic(i) / phi, 0.0, 0.99);
+    const double index = nb ? 1 + mu / fit.theta : phi;
+    const double spread = std::sqrt(index * (1 - h));
+    // Most records above their mean are far below the threshold: they skip
+    // the two cube roots (glibc's cbrt costs about three exps).
+    if (threshold >= 0 && anscombe_surely_within(y, mu, spread, threshold)) continue;
+    // Poisson Anscombe residual; its variance is about the dispersion index
+    // (phi, or 1 + mu / theta for NB2). mu^(1/6) is the square root of the
+    // square root of mu^(2/3).
+    const double mu23 = std::cbrt(mu * mu);
+    const double anscombe = 1.5 * (std::cbrt(y * y) - mu23) / std::sqrt(std::sqrt(mu23));
+    const double s = anscombe / spread;
+    if (s > threshold) {
+      w(i) = weights_(i) / (s * s);
+      any = true;
+    }
+  }
+  if (!any) return {};
+  // gamma: keep the total prior weight (Farrington et al. 1996).
+  const double total = w.sum();
+  if (!(total > 0)) return {};
+  const double scale = weights_.sum() / total;
+  w *= scale;
+  if (gamma != nullptr) *gamma = scale;
+  return w;
 }
 
 glm::FitResult SeriesModel::fit_report() const {

@@ -272,3 +272,36 @@ TEST_CASE("the small-p fit declines what only fit_glm decides", "[glm]") {
     CHECK_FALSE(small.fit(Eigen::VectorXd::Ones(4), options_for(Family::quasipoisson), start, out));
   }
 }
+
+// The refit's entry point: the fast path where it applies, fit_glm's own
+// result, bit for bit, where it does not (no warm start, negbin).
+TEST_CASE("fit_fast_or_general takes the fast path only where it applies", "[glm]") {
+  const int n = 300;
+  const Eigen::MatrixXd X = daily_design(n, 6);
+  Eigen::VectorXd y, offset;
+  counts(X, 1.2, 0.3, true, y, offset);
+  const Eigen::VectorXd w = Eigen::VectorXd::Ones(n);
+  Eigen::VectorXd start = Eigen::VectorXd::Zero(6);
+  start(0) = 1.0;
+  for (const Family family : {Family::quasipoisson, Family::negbin}) {
+    const FitOptions o = options_for(family);
+    const Eigen::VectorXd* starts[2] = {nullptr, &start};
+    for (const Eigen::VectorXd* s : starts) {
+      SmallFit small;
+      small.use(X, y, offset);
+      const FitResult got = tallyd::glm::fit_fast_or_general(small, X, y, offset, w, o, s);
+      const FitResult ref = tallyd::glm::fit_glm(X, y, offset, w, o, s, true);
+      INFO("family " << to_string(family) << (s != nullptr ? " warm" : " cold"));
+      const bool fast = family == Family::quasipoisson && s != nullptr;
+      CHECK(small.estimate_at(got.coefficients) == fast);
+      if (fast) {
+        check_same(got, ref);
+      } else {
+        CHECK(got.coefficients == ref.coefficients);
+        CHECK(got.covariance == ref.covariance);
+        CHECK(got.iterations == ref.iterations);
+        CHECK(got.note == ref.note);
+      }
+    }
+  }
+}

@@ -152,3 +152,28 @@ TEST_CASE("reweighted moments: the skipped terms change neither factor", "[serie
     }
   }
 }
+
+// The cube-root-free test against the residual computed as the refit did
+// before it (cbrt): it may only say "within" when the residual is at or
+// below the threshold, and it must say so for records well inside.
+TEST_CASE("anscombe_surely_within never hides a residual above the threshold", "[series]") {
+  int skipped = 0, total = 0;
+  for (double threshold : {0.0, 1.0, 2.58, 4.0}) {
+    for (double mu : {0.01, 0.3, 1.0, 2.5, 7.0, 40.0, 333.0, 5000.0}) {
+      for (double spread : {0.2, 1.0, 1.7, 3.0}) {
+        for (int k = 0; k <= 400; ++k) {
+          const double y = std::floor(mu + k * (0.05 + 0.02 * std::sqrt(mu)) * spread);
+          const double mu23 = std::cbrt(mu * mu);
+          const double s = 1.5 * (std::cbrt(y * y) - mu23) / std::sqrt(std::sqrt(mu23)) / spread;
+          const bool within = anscombe_surely_within(y, mu, spread, threshold);
+          INFO("threshold " << threshold << " mu " << mu << " spread " << spread << " y " << y << " s " << s);
+          if (within) CHECK(s <= threshold);
+          if (s < threshold * (1 - 1e-6) - 1e-6) CHECK(within);
+          skipped += within ? 1 : 0;
+          ++total;
+        }
+      }
+    }
+  }
+  CHECK(skipped > total / 10);  // the grid runs far past the threshold; 8,440 of 51,328 here
+}
