@@ -29,6 +29,13 @@ double normal_reweighted_mean_factor(double threshold, double mean, double phi) 
   return 1 + std::sqrt(phi * mean) * vz / (mean * ev);
 }
 
+bool anscombe_surely_within(double y, double mu, double spread, double threshold) {
+  const double c = threshold * spread / 1.5;
+  const double root_mu = std::sqrt(mu);
+  const double cut_cubed = mu * mu + 3 * c * mu * root_mu + 3 * c * c * mu + c * c * c * root_mu;
+  return y * y < cut_cubed * (1 - 1e-9);
+}
+
 ReweightedMoments reweighted_moments(double threshold, double mean, double phi) {
   if (!(threshold < HUGE_VAL) || !(mean > 0) || !(phi > 0) || !std::isfinite(mean) || !std::isfinite(phi))
     return {1.0, 1.0};
@@ -58,14 +65,27 @@ ReweightedMoments reweighted_moments(double threshold, double mean, double phi) 
   // Count by count, P(Y = y + 1) follows from P(Y = y) by the pmf's ratio
   // (one multiplication instead of three lgamma calls per term).
   double pmf = std::exp(log_pmf(from));
+  // s > threshold means y^(2/3) > cut: a count whose square is below cut^3
+  // by far more than rounding has v = 1 without its cube root.
+  const double cut = mu_23 + threshold / anscombe_scale;
+  const double sure_below = cut > 0 ? cut * cut * cut * (1 - 1e-9) : -1.0;
   for (double y = from; y <= to; y += step) {
     if (step > 1) pmf = std::exp(log_pmf(y));
     const double p = pmf * step;
     if (step == 1) pmf *= poisson ? mean / (y + 1) : (y + theta) / (y + 1) * (mean / (mean + theta));
     if (!(p > 0)) continue;
-    const double s = anscombe_scale * (std::cbrt(y * y) - mu_23);
-    const double v = s > threshold ? 1 / (s * s) : 1.0;
     const double r = (y - mean) / sd;
+    double v = 1.0;
+    if (!(y * y < sure_below)) {
+      // A far-tail term below a quarter of an ulp of every running sum
+      // leaves all four unchanged, whatever its v (at most 1): skip it and
+      // its cube root (the sums are bit for bit those of adding it).
+      const double largest_term = p * std::max({1.0, r * r, y});
+      const double smallest_sum = std::min({mass, weight, weighted_square, weighted_count});
+      if (largest_term < 0x1p-55 * smallest_sum) continue;
+      const double s = anscombe_scale * (std::cbrt(y * y) - mu_23);
+      v = s > threshold ? 1 / (s * s) : 1.0;
+    }
     mass += p;
     weight += p * v;
     weighted_square += p * v * r * r;

@@ -59,4 +59,13 @@ ReweightedMoments reweighted_moments(double threshold, double mean, double phi);
 // m for a normal residual of the given mean and dispersion; 1 for c = +infinity.
 double normal_reweighted_mean_factor(double threshold, double mean, double phi);
 
+// True when a count y surely has a standardized Poisson Anscombe residual
+//   s = 1.5 (y^(2/3) - mu^(2/3)) / (mu^(1/6) spread)
+// at or below `threshold`, decided without cube roots: s > threshold means
+// y^2 > (mu^(2/3) + c mu^(1/6))^3 with c = threshold spread / 1.5, which
+// expands to mu^2 + 3c mu^(3/2) + 3c^2 mu + c^3 mu^(1/2) (one square root).
+// False ("compute s") within 1e-9 relative of that boundary, so the answer
+// never depends on rounding. Preconditions: mu > 0, spread > 0, threshold >= 0.
+bool anscombe_surely_within(double y, double mu, double spread, double threshold);
+
 }  // namespace tallyd

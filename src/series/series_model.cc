@@ -5,6 +5,7 @@
 #include <cstdint>
 #include <limits>
 
+#include "glm/small_fit.h"
 #include "series/design.h"
 #include "series/resistant_dispersion.h"
 
@@ -324,7 +325,11 @@ void SeriesModel::refit() {
   if (has_fit_ && std::isfinite(fit_.theta)) options.start_theta = fit_.theta;
   const Eigen::VectorXd* start = has_fit_ ? &fit_.coefficients : nullptr;
 
-  glm::FitResult result = glm::fit_glm(X_, y_, offset_, weights_, options, start, true);
+  // Warm-started fits of a narrow log-link design take the one-pass path
+  // (glm/small_fit.h), which leaves every hard case to fit_glm.
+  glm::SmallFit small;
+  small.use(X_, y_, offset_);
+  glm::FitResult result = glm::fit_fast_or_general(small, X_, y_, offset_, weights_, options, start);
   ++fits_done_;
   last_fit_status_ = result.status;
   last_fit_note_ = result.note;
@@ -348,7 +353,8 @@ void SeriesModel::refit() {
       double round_gamma = 1;
       Eigen::VectorXd resistant = resistant_weights(result, &round_gamma);
       if (resistant.size() == 0) break;
-      glm::FitResult next = glm::fit_glm(X_, y_, offset_, resistant, options, &result.coefficients, true);
+      glm::FitResult next =
+          glm::fit_fast_or_general(small, X_, y_, offset_, resistant, options, &result.coefficients);
       ++fits_done_;
       if (next.status != glm::FitStatus::ok) break;
       result = std::move(next);
@@ -450,13 +456,17 @@ Eigen::VectorXd SeriesModel::resistant_weights(const glm::FitResult& fit, double
     // Leverage h = w x' (X'WX)^-1 x with Cov = phi (X'WX)^-1 for quasi-Poisson.
     const double working = weights_(i) * d * d / variance;
     const double h = std::clamp(working * quadratic(i) / phi, 0.0, 0.99);
+    const double index = nb ? 1 + mu / fit.theta : phi;
+    const double spread = std::sqrt(index * (1 - h));
+    // Most records above their mean are far below the threshold: they skip
+    // the two cube roots (glibc's cbrt costs about three exps).
+    if (threshold >= 0 && anscombe_surely_within(y, mu, spread, threshold)) continue;
     // Poisson Anscombe residual; its variance is about the dispersion index
     // (phi, or 1 + mu / theta for NB2). mu^(1/6) is the square root of the
     // square root of mu^(2/3).
     const double mu23 = std::cbrt(mu * mu);
     const double anscombe = 1.5 * (std::cbrt(y * y) - mu23) / std::sqrt(std::sqrt(mu23));
-    const double index = nb ? 1 + mu / fit.theta : phi;
-    const double s = anscombe / std::sqrt(index * (1 - h));
+    const double s = anscombe / spread;
     if (s > threshold) {
       w(i) = weights_(i) / (s * s);
       any = true;

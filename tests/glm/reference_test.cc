@@ -5,6 +5,8 @@
 // layout. Every case here is tagged [R].
 #include "glm/fit.h"
 
+#include "glm/small_fit.h"
+
 #include <cmath>
 #include <fstream>
 #include <limits>
@@ -186,6 +188,34 @@ TEST_CASE("Dobson's trial counts match R under the log, sqrt and identity links"
       check_against_r(fit_case(c, Family::poisson, link), c);
     }
   }
+}
+
+// The refit's fast path (glm/small_fit.h) on the same counts, from a cold
+// warm start (all coefficients 0); reference: R glm(poisson), log link.
+// It computes no null deviance; the rest must match R as fit_glm does.
+TEST_CASE("the small-p fast path matches R on Dobson's trial counts", "[R][glm]") {
+  const RCase c = load_case("dobson_log");
+  FitOptions options;
+  options.family = Family::poisson;
+  options.link = Link::log;
+  options.tolerance = kRTolerance;
+  options.null_deviance = false;
+  tallyd::glm::SmallFit small;
+  small.use(c.X, c.y, c.offset);
+  FitResult fit;
+  const Eigen::VectorXd start = Eigen::VectorXd::Zero(c.X.cols());
+  REQUIRE(small.fit(c.weight, options, start, fit));
+  REQUIRE(fit.status == FitStatus::ok);
+  for (Eigen::Index j = 0; j < c.X.cols(); ++j) {
+    INFO("term " << c.terms[static_cast<std::size_t>(j)] << ": ours " << fit.coefficients(j)
+                 << " R " << c.estimate(j));
+    CHECK(close(fit.coefficients(j), c.estimate(j), kTightRel));
+    CHECK(close(std::sqrt(fit.covariance(j, j)), c.std_error(j), kLooseRel));
+  }
+  CHECK(close(fit.deviance, c.summary.at("deviance"), kTightRel));
+  CHECK(close(fit.aic, c.summary.at("aic"), kTightRel));
+  CHECK(close(fit.log_likelihood, c.summary.at("log_likelihood"), kTightRel));
+  CHECK(fit.df_residual == static_cast<int>(c.summary.at("df_residual")));
 }
 
 // Dobson (1990, p. 93) counts with prior weights (one of them 0); reference:
