@@ -5,6 +5,7 @@
 #include <sys/uio.h>
 #include <unistd.h>
 
+#include <algorithm>
 #include <cerrno>
 #include <cstring>
 #include <filesystem>
@@ -80,12 +81,16 @@ Result<Restored> decode_format5(std::string_view rest, std::string_view name, co
   if (head.failed()) return mismatch("head", head.error());
 
   StateReader body(*body_bytes, StateLayout::binary);
-  // The series' histories go into one mapping of huge pages, prefaulted in
-  // chunks (core/bulk_memory.h): page faults were most of a restore. A
-  // record takes at least 3 bytes of the body and 32 in memory, a covariate
-  // 8 in both; the bound only reserves address space, and what is not used
-  // is given back at once.
-  const std::shared_ptr<BulkMemory> histories = BulkMemory::create(body_bytes->size() / 3 * 32 + body_bytes->size());
+  // The series' models and histories go into one mapping of huge pages,
+  // prefaulted in chunks (core/bulk_memory.h): page faults were most of a
+  // restore. A record takes at least 3 bytes of the body and 32 in memory, a
+  // covariate 8 in both, a model its size (the head's count, checked against
+  // the body below; a count beyond the body's bytes cannot be true); the
+  // bound only reserves address space, and what is not used is given back at
+  // once.
+  const std::size_t models = static_cast<std::size_t>(std::min<std::uint64_t>(series, body_bytes->size()));
+  const std::shared_ptr<BulkMemory> histories = BulkMemory::create(
+      body_bytes->size() / 3 * 32 + body_bytes->size() + models * (sizeof(SeriesModel) + 64));
   body.offer_memory(histories);
   out.engine = std::make_unique<Engine>(settings, limits, fdr);
   out.engine->load_state(body);

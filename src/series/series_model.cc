@@ -23,6 +23,7 @@ SeriesModel::SeriesModel(std::string id, const SeriesSettings& settings)
       p_(coefficient_count(settings.model)),
       records_(1, window_rows(settings.model)),
       covariate_values_(settings.model.covariates.size(), window_rows(settings.model)),
+      scales_(2, window_rows(settings.model)),
       season_values_(static_cast<std::size_t>(season_column_count(settings.model)), window_rows(settings.model)),
       seasons_per_row_(season_column_count(settings.model)) {}
 
@@ -114,7 +115,8 @@ void SeriesModel::learn(const Observation& obs, double weight) {
   // dropping it after (trim_window drops a prefix either way).
   const std::optional<std::size_t> limit = settings_->model.window.records;
   if (limit && *limit > 0 && records_.size() >= *limit) drop_oldest(records_.size() - *limit + 1);
-  *records_.push_back() = Stored{obs.time, obs.count, obs.exposure, weight};
+  *records_.push_back() = Stored{obs.time, obs.count};
+  push_scales(obs.exposure, weight);
   if (!settings_->model.covariates.empty()) {
     double* row = covariate_values_.push_back();
     for (const std::string& name : settings_->model.covariates) {
@@ -134,6 +136,7 @@ void SeriesModel::learn(const Observation& obs, double weight) {
 
 void SeriesModel::drop_oldest(std::size_t rows) {
   records_.pop_front(rows);
+  if (!scales_.empty()) scales_.pop_front(rows);
   if (!settings_->model.covariates.empty()) covariate_values_.pop_front(rows);
   if (seasons_per_row_ > 0) {
     // A cache out of step (a restored model before its first learn) is refilled by learn().
@@ -165,14 +168,14 @@ void SeriesModel::build_design(Eigen::MatrixXd& X, Eigen::VectorXd& y, Eigen::Ve
     const double* cov = covariate_values_.row(i);
     const auto row = static_cast<Eigen::Index>(i);
     if (!cached) {
-      offset(row) = row_for(r.time, r.exposure, cov, X.row(row));
+      offset(row) = row_for(r.time, exposure_at(i), cov, X.row(row));
     } else {
       // The same row as row_for, with the seasonal columns kept since learn().
-      const DesignInput in{r.time, origin_.value_or(r.time), r.exposure, cov};
+      const DesignInput in{r.time, origin_.value_or(r.time), exposure_at(i), cov};
       offset(row) = design_row(settings_->model, in, season_values_.row(i), X.row(row));
     }
     y(row) = static_cast<double>(r.count);
-    weights(row) = r.weight;
+    weights(row) = weight_at(i);
   }
 }
 

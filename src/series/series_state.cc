@@ -94,6 +94,19 @@ void load_fit(StateReader& r, glm::FitResult& f, int p) {
 
 }  // namespace
 
+void SeriesModel::push_scales(double exposure, double weight) {
+  if (scales_.empty()) {
+    if (is_one(exposure) && is_one(weight)) return;
+    // Rows for the records before this one, all {1, 1}, in a block as large
+    // as the window's so that the rows never move once the window is full.
+    scales_.reserve(std::max(records_.capacity(), records_.size()));
+    const double ones[2] = {1.0, 1.0};
+    for (std::size_t i = 0; i + 1 < records_.size(); ++i) scales_.push_back(ones);
+  }
+  const double row[2] = {exposure, weight};
+  scales_.push_back(row);
+}
+
 void SeriesModel::save_state(StateWriter& w) const {
   w.tag("model");
   w.boolean(origin_.has_value());
@@ -113,22 +126,23 @@ void SeriesModel::save_state(StateWriter& w) const {
   for (std::size_t i = 0; i < records_.size(); ++i) {
     const Stored& s = *records_.row(i);
     const std::int64_t time = s.time.time_since_epoch().count();
+    const double exposure = exposure_at(i), weight = weight_at(i);
     if (w.binary()) {
       // The history is most of a checkpoint: a record is a flags byte, its
       // time as the step from the record before, its count, and only those
       // of exposure and weight that are not exactly 1.
-      const bool unit_exposure = is_one(s.exposure), unit_weight = is_one(s.weight);
+      const bool unit_exposure = is_one(exposure), unit_weight = is_one(weight);
       w.u64((unit_exposure ? kUnitExposure : 0) | (unit_weight ? kUnitWeight : 0));
       w.i64(step(previous, time));
       w.i64(s.count);
-      if (!unit_exposure) w.f64(s.exposure);
-      if (!unit_weight) w.f64(s.weight);
+      if (!unit_exposure) w.f64(exposure);
+      if (!unit_weight) w.f64(weight);
       previous = time;
     } else {
       w.i64(time);
       w.i64(s.count);
-      w.f64(s.exposure);
-      w.f64(s.weight);
+      w.f64(exposure);
+      w.f64(weight);
     }
     const double* cov = covariate_values_.row(i);
     for (std::size_t c = 0; c < k; ++c) w.f64(cov[c]);
@@ -158,6 +172,7 @@ void SeriesModel::load_state(StateReader& r) {
   if (r.failed()) return;
   records_.clear();
   covariate_values_.clear();
+  scales_.clear();
   season_values_.clear();  // derived from the times; refilled by the next learn()
   // One block for the whole history. A record takes at least 3 bytes of the
   // state (binary: flags, time step, count; text: more), so a damaged count
@@ -180,20 +195,25 @@ void SeriesModel::load_state(StateReader& r) {
   std::int64_t previous = 0;
   for (std::uint64_t i = 0; i < n && !r.failed(); ++i) {
     Stored& s = *records_.push_back();
+    double exposure = 1.0, weight = 1.0;
     if (r.binary()) {
       const std::uint64_t flags = r.u64();
       if (flags > (kUnitExposure | kUnitWeight)) r.fail(fmt::format("history record flags {} unknown", flags));
       previous = advance(previous, r.i64());
       s.time = TimePoint{Seconds{previous}};
       s.count = r.i64();
-      s.exposure = (flags & kUnitExposure) ? 1.0 : r.f64();
-      s.weight = (flags & kUnitWeight) ? 1.0 : r.f64();
+      if (!(flags & kUnitExposure)) exposure = r.f64();
+      if (!(flags & kUnitWeight)) weight = r.f64();
     } else {
       s.time = TimePoint{Seconds{r.i64()}};
       s.count = r.i64();
-      s.exposure = r.f64();
-      s.weight = r.f64();
+      exposure = r.f64();
+      weight = r.f64();
     }
+    // The first record with a scale other than 1 starts scales_' rows: its
+    // block is placed like the others, for the whole saved history.
+    if (scales_.empty() && !(is_one(exposure) && is_one(weight))) place(scales_);
+    push_scales(exposure, weight);
     if (k > 0) {
       double* cov = covariate_values_.push_back();
       for (std::uint64_t c = 0; c < k; ++c) cov[c] = r.f64();
