@@ -212,8 +212,10 @@ void SeriesModel::load_state(StateReader& r) {
     }
     // The first record with a scale other than 1 starts scales_' rows: its
     // block is placed like the others, for the whole saved history.
-    if (scales_.empty() && !(is_one(exposure) && is_one(weight))) place(scales_);
-    push_scales(exposure, weight);
+    if (!scales_.empty() || !(is_one(exposure) && is_one(weight))) {
+      if (scales_.empty()) place(scales_);
+      push_scales(exposure, weight);
+    }
     if (k > 0) {
       double* cov = covariate_values_.push_back();
       for (std::uint64_t c = 0; c < k; ++c) cov[c] = r.f64();
