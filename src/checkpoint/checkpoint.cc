@@ -93,8 +93,8 @@ Result<Restored> restore_body(StateReader& body, std::size_t body_size, Head hea
                               const SettingsTable& settings, EngineLimits limits, detect::FdrSpec fdr) {
   // The series' models and histories go into one mapping of huge pages,
   // prefaulted in chunks (core/bulk_memory.h): page faults were most of a
-  // restore. A record takes at least 3 bytes of the body and 16 in memory
-  // (32 with exposure and weight), a covariate 8 in both, a model its size
+  // restore. A record takes at least 3 bytes of the body and 8 to 40 in
+  // memory (series_model.h; the bound allows 32), a covariate 8 in both, a model its size
   // (the head's count, checked against the body below; a count beyond the
   // body's bytes cannot be true); the bound only reserves address space,
   // and what is not used is given back at once.

@@ -22,6 +22,7 @@ SeriesModel::SeriesModel(std::string id, const SeriesSettings& settings)
       settings_(&settings),
       p_(coefficient_count(settings.model)),
       records_(1, window_rows(settings.model)),
+      wide_(1, window_rows(settings.model)),
       covariate_values_(settings.model.covariates.size(), window_rows(settings.model)),
       scales_(2, window_rows(settings.model)),
       season_values_(static_cast<std::size_t>(season_column_count(settings.model)), window_rows(settings.model)),
@@ -43,7 +44,7 @@ bool SeriesModel::ready() const {
 
 std::optional<TimePoint> SeriesModel::last_time() const {
   if (records_.empty()) return std::nullopt;
-  return records_.row(records_.size() - 1)->time;
+  return time_at(records_.size() - 1);
 }
 
 std::vector<double> SeriesModel::covariates_of(const Observation& obs) const {
@@ -104,7 +105,7 @@ void SeriesModel::push_season_values(TimePoint time) {
 void SeriesModel::fill_season_cache() {
   season_values_.clear();
   season_values_.reserve(records_.size());
-  for (std::size_t i = 0; i < records_.size(); ++i) push_season_values(records_.row(i)->time);
+  for (std::size_t i = 0; i < records_.size(); ++i) push_season_values(time_at(i));
 }
 
 void SeriesModel::learn(const Observation& obs, double weight) {
@@ -115,7 +116,7 @@ void SeriesModel::learn(const Observation& obs, double weight) {
   // dropping it after (trim_window drops a prefix either way).
   const std::optional<std::size_t> limit = settings_->model.window.records;
   if (limit && *limit > 0 && records_.size() >= *limit) drop_oldest(records_.size() - *limit + 1);
-  *records_.push_back() = Stored{obs.time, obs.count};
+  push_record(obs.time, obs.count);
   push_scales(obs.exposure, weight);
   if (!settings_->model.covariates.empty()) {
     double* row = covariate_values_.push_back();
@@ -136,6 +137,7 @@ void SeriesModel::learn(const Observation& obs, double weight) {
 
 void SeriesModel::drop_oldest(std::size_t rows) {
   records_.pop_front(rows);
+  if (!wide_.empty()) wide_.pop_front(rows);
   if (!scales_.empty()) scales_.pop_front(rows);
   if (!settings_->model.covariates.empty()) covariate_values_.pop_front(rows);
   if (seasons_per_row_ > 0) {
@@ -149,7 +151,7 @@ void SeriesModel::trim_window(TimePoint latest) {
   const Window& w = settings_->model.window;
   std::size_t drop = 0;
   if (w.span) {
-    while (drop < records_.size() && records_.row(drop)->time <= latest - *w.span) ++drop;
+    while (drop < records_.size() && time_at(drop) <= latest - *w.span) ++drop;
   }
   if (w.records && records_.size() - drop > *w.records) drop = records_.size() - *w.records;
   if (drop > 0) drop_oldest(drop);
@@ -164,17 +166,17 @@ void SeriesModel::build_design(Eigen::MatrixXd& X, Eigen::VectorXd& y, Eigen::Ve
   weights.resize(static_cast<Eigen::Index>(n));
   const bool cached = season_cache_ok();
   for (std::size_t i = 0; i < n; ++i) {
-    const Stored& r = *records_.row(i);
+    const TimePoint time = time_at(i);
     const double* cov = covariate_values_.row(i);
     const auto row = static_cast<Eigen::Index>(i);
     if (!cached) {
-      offset(row) = row_for(r.time, exposure_at(i), cov, X.row(row));
+      offset(row) = row_for(time, exposure_at(i), cov, X.row(row));
     } else {
       // The same row as row_for, with the seasonal columns kept since learn().
-      const DesignInput in{r.time, origin_.value_or(r.time), exposure_at(i), cov};
+      const DesignInput in{time, origin_.value_or(time), exposure_at(i), cov};
       offset(row) = design_row(settings_->model, in, season_values_.row(i), X.row(row));
     }
-    y(row) = static_cast<double>(r.count);
+    y(row) = static_cast<double>(count_at(i));
     weights(row) = weight_at(i);
   }
 }
