@@ -6,6 +6,7 @@
 //                      [--workers T] [--batch B] [--method quadrature|simulate|both] [--screen off|on|both]
 //                      [--cadences 2,4,7] [--doubt off|on|both] [--annual-harmonics H]
 //                      [--cadence-from N] [--doubt-factor F] [--feed-out FILE.csv]
+//                      [--verdicts-save FILE] [--verdicts-against FILE]
 //
 // Prints one row per method and screen setting: records, seconds,
 // records/s, judged, alerts, and how many records' verdicts (no alert, high,
@@ -26,6 +27,11 @@
 // seconds, series, count, exposure to 17 digits) and nothing is timed: two
 // builds can then replay the same records with `tallyd replay` and their
 // alert files be compared byte for byte.
+// --verdicts-save writes the first row's per-record verdicts (one byte per
+// record) and --verdicts-against compares every row with such a file, so the
+// slow refit-every-record baseline of a long feed is run once and each
+// cadence or setting after it is compared record by record in seconds (the
+// file must come from the same --series, --days and --window).
 #include <algorithm>
 #include <chrono>
 #include <cmath>
@@ -59,6 +65,8 @@ struct Args {
   std::string screen = "off";
   std::string doubt = "both";
   std::string feed_out;
+  std::string verdicts_save;
+  std::string verdicts_against;
   std::vector<std::size_t> cadences;
 };
 
@@ -92,6 +100,14 @@ Args parse_args(int argc, char** argv) {
     }
     if (k == "--feed-out") {
       a.feed_out = argv[i + 1];
+      continue;
+    }
+    if (k == "--verdicts-save") {
+      a.verdicts_save = argv[i + 1];
+      continue;
+    }
+    if (k == "--verdicts-against") {
+      a.verdicts_against = argv[i + 1];
       continue;
     }
     if (k == "--cadences") {
@@ -210,6 +226,24 @@ Row run_single(const std::vector<Observation>& feed, const SettingsTable& settin
   return row;
 }
 
+bool save_verdicts(const Row& r, const std::string& path) {
+  std::FILE* f = std::fopen(path.c_str(), "wb");
+  if (f == nullptr) return false;
+  const bool ok = std::fwrite(r.verdicts.data(), 1, r.verdicts.size(), f) == r.verdicts.size();
+  return std::fclose(f) == 0 && ok;
+}
+
+std::optional<Row> load_verdicts(const std::string& path, std::size_t records) {
+  std::FILE* f = std::fopen(path.c_str(), "rb");
+  if (f == nullptr) return std::nullopt;
+  Row r{0, {}, {}, 0, 0};
+  r.verdicts.resize(records);
+  const bool ok = std::fread(r.verdicts.data(), 1, records, f) == records && std::fgetc(f) == EOF;
+  std::fclose(f);
+  if (!ok) return std::nullopt;
+  return r;
+}
+
 std::size_t differing(const Row& a, const Row& b) {
   std::size_t n = 0;
   for (std::size_t i = 0; i < a.verdicts.size() && i < b.verdicts.size(); ++i) n += a.verdicts[i] != b.verdicts[i];
@@ -246,6 +280,30 @@ void print_row(const char* method, const char* screen, std::size_t every, int wo
               static_cast<unsigned long long>(r.counters.alerts_high + r.counters.alerts_low), diff.c_str());
 }
 
+// With --verdicts-against: how many records' verdicts differ from the file's
+// run, and how many alerts each has; fits per record of this run.
+void report_against(const Args& a, const Row& r, std::size_t records) {
+  if (a.verdicts_against.empty()) return;
+  const std::optional<Row> ref = load_verdicts(a.verdicts_against, records);
+  if (!ref) {
+    std::printf("  %s: cannot read %zu verdicts from it\n", a.verdicts_against.c_str(), records);
+    return;
+  }
+  std::size_t ref_alerts = 0, alerts = 0, lost = 0, gained = 0;
+  for (std::size_t i = 0; i < records; ++i) {
+    const bool x = ref->verdicts[i] == 1 || ref->verdicts[i] == -1;
+    const bool y = r.verdicts[i] == 1 || r.verdicts[i] == -1;
+    ref_alerts += x;
+    alerts += y;
+    lost += x && !y;
+    gained += y && !x;
+  }
+  std::printf("  against %s: %zu records differ (%zu alerts lost, %zu gained; %zu alerts there, %zu here);"
+              " %.3f fits per record\n",
+              a.verdicts_against.c_str(), differing(r, *ref), lost, gained, ref_alerts, alerts,
+              static_cast<double>(r.fits) / static_cast<double>(records));
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -267,8 +325,15 @@ int main(int argc, char** argv) {
       const SettingsTable settings =
           bench_settings(a, method, screen, a.refit_every, a.refit_every > 1 && a.doubt == "on");
       const Row one = run_single(feed, settings);
-      if (!base) base = one;
+      if (!base) {
+        base = one;
+        if (!a.verdicts_save.empty() && !save_verdicts(one, a.verdicts_save)) {
+          std::fprintf(stderr, "cannot write %s\n", a.verdicts_save.c_str());
+          return 1;
+        }
+      }
       print_row(name.c_str(), screen ? "on" : "off", a.refit_every, 1, feed.size(), one, *base);
+      report_against(a, one, feed.size());
       if (a.workers > 1) {
         const std::size_t batch = static_cast<std::size_t>(std::max(a.batch > 0 ? a.batch : a.series, 1));
         const Row many = run_sharded(feed, settings, a.workers, batch);
@@ -290,6 +355,7 @@ int main(int argc, char** argv) {
         const SettingsTable settings = bench_settings(a, method, screens.back(), every, doubt);
         const Row r = run_single(feed, settings);
         print_row(name.c_str(), screens.back() ? "on" : "off", every, 1, feed.size(), r, *base);
+        report_against(a, r, feed.size());
         std::printf("  refit every %zu%s: %zu of %llu judged records (%.4f%%) differ from refit every %zu;"
                     " %.3f fits per record (%.3f there)\n",
                     every, doubt ? " on doubt" : "", differing(r, *base),
