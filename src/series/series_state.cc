@@ -117,7 +117,8 @@ void SeriesModel::push_record(TimePoint time, std::int64_t count) {
       *wide_.push_back() = Wide{*origin_ + Seconds{narrow.since_origin}, static_cast<std::int64_t>(narrow.count)};
     }
   }
-  *records_.push_back() = fits ? Stored{static_cast<std::uint32_t>(since), static_cast<std::uint32_t>(count)} : Stored{0, 0};
+  *records_.push_back() =
+      fits ? Stored{static_cast<std::uint32_t>(since), static_cast<std::uint32_t>(count)} : Stored{0, 0};
   if (!wide_.empty()) *wide_.push_back() = Wide{time, count};
 }
 
