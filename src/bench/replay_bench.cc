@@ -6,7 +6,7 @@
 //                      [--workers T] [--batch B] [--method quadrature|simulate|both] [--screen off|on|both]
 //                      [--cadences 2,4,7] [--doubt off|on|both] [--annual-harmonics H]
 //                      [--cadence-from N] [--doubt-factor F] [--feed-out FILE.csv]
-//                      [--verdicts-save FILE] [--verdicts-against FILE]
+//                      [--verdicts-save FILE] [--verdicts-against FILE] [--steps off|on]
 //
 // Prints one row per method and screen setting: records, seconds,
 // records/s, judged, alerts, and how many records' verdicts (no alert, high,
@@ -32,6 +32,8 @@
 // slow refit-every-record baseline of a long feed is run once and each
 // cadence or setting after it is compared record by record in seconds (the
 // file must come from the same --series, --days and --window).
+// --steps on sets model.step_between_refits in every row (a Newton step per
+// record between full refits; series/window_step.h).
 #include <algorithm>
 #include <chrono>
 #include <cmath>
@@ -58,6 +60,7 @@ struct Args {
   std::size_t refit_every = 1;
   std::size_t cadence_from = 0;  // model.cadence_from of every row
   double doubt_factor = 10;      // model.doubt_factor of every row
+  bool steps = false;            // model.step_between_refits of every row
   int workers = 1;
   int batch = 0;  // records per sharded batch; 0: one day (--series records)
   int annual_harmonics = 1;  // coefficients: intercept, trend, 2 per annual harmonic, 2 weekly
@@ -100,6 +103,15 @@ Args parse_args(int argc, char** argv) {
     }
     if (k == "--feed-out") {
       a.feed_out = argv[i + 1];
+      continue;
+    }
+    if (k == "--steps") {
+      const std::string v = argv[i + 1];
+      if (v != "on" && v != "off") {
+        std::fprintf(stderr, "--steps must be on or off\n");
+        std::exit(1);
+      }
+      a.steps = v == "on";
       continue;
     }
     if (k == "--verdicts-save") {
@@ -195,6 +207,7 @@ SettingsTable bench_settings(const Args& a, bounds::Method method, bool screen, 
   m.refit_on_doubt = doubt;
   m.cadence_from = a.cadence_from;
   m.doubt_factor = a.doubt_factor;
+  m.step_between_refits = a.steps;
   t.defaults.alert.method = method;
   t.defaults.alert.draws = a.draws;
   t.defaults.alert.alpha = 0.001;

@@ -68,6 +68,9 @@ HermiteRule build_rule(int n) {
     rule.weights[lo] = rule.weights[hi] = w;
   }
   if (n % 2 == 1) rule.nodes[static_cast<std::size_t>(n / 2)] = 0;
+  double total = 0;
+  for (const double w : rule.weights) total += w;
+  for (const double w : rule.weights) rule.normalised.push_back(w / total);
   return rule;
 }
 

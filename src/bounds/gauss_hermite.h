@@ -11,6 +11,10 @@ namespace tallyd::bounds {
 struct HermiteRule {
   std::vector<double> nodes;    // ascending, symmetric about 0
   std::vector<double> weights;  // positive, sum sqrt(pi); full relative accuracy even when tiny
+  // weights[i] / (their sum as computed, in index order): the weights of an
+  // expectation, summing to 1 up to rounding. Kept so a caller per record
+  // (bounds/mixture.h) neither re-sums nor divides.
+  std::vector<double> normalised;
 };
 
 inline constexpr int kMaxHermiteNodes = 256;

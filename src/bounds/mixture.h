@@ -120,13 +120,11 @@ void for_each_node(const Predictor& predictor, const QuadratureRule& rule, Node&
     return;
   }
   const HermiteRule& hermite = gauss_hermite(rule.hermite_nodes);
-  // Normalising by the computed sum (sqrt(pi) up to rounding) makes the
+  // Normalised by the computed sum (sqrt(pi) up to rounding), which makes the
   // mixture CDF reach exactly 1 as far as the sums allow.
-  double total = 0;
-  for (const double x : hermite.weights) total += x;
   const double scale = std::sqrt(2 * predictor.eta_variance);
   for (std::size_t i = 0; i < hermite.nodes.size(); ++i) {
-    node(hermite.weights[i] / total, predictor.eta_mean + scale * hermite.nodes[i]);
+    node(hermite.normalised[i], predictor.eta_mean + scale * hermite.nodes[i]);
   }
 }
 

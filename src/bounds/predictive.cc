@@ -47,7 +47,7 @@ Bounds evaluate(const Predictor& predictor, const CountNoise& noise, std::int64_
   double screened_expected = 0;
   if (options.screen) {
     const ScreenOutcome s = screen_record(p, noise, observed, options.quadrature_nodes, alpha,
-                                          simulate ? std::max(options.draws, 1) : 0);
+                                          simulate ? std::max(options.draws, 1) : 0, options.wanted_floor);
     screened_expected = s.expected;
     if (s.settled) {
       Bounds b;

@@ -91,6 +91,11 @@ struct Options {
                               // verdict with probability <= 2e-12 per record; simulate's draws also stop
                               // once neither side can alert (exact, simulate.h). Settled records come back
                               // with `screened` set and without integer bounds (see Bounds).
+  double wanted_floor = 0;    // with the screen: a record is settled by its cheapest stage (no special
+                              // function) only when both p-value floors also exceed this; otherwise the
+                              // exact tails are taken first (bounds/screen.h). SeriesModel::predict sets
+                              // model.doubt_factor * alpha while refit_on_doubt may act, so a settled
+                              // record's floors decide the doubt test as exact tails would. 0: alpha alone.
 };
 
 struct Bounds {

@@ -5,6 +5,7 @@
 
 #include "bounds/count_noise.h"
 #include "bounds/mixture.h"
+#include "bounds/tail_floor.h"
 
 namespace tallyd::bounds {
 
@@ -119,16 +120,55 @@ const GaussianBands& gaussian_bands() {
   return bands;
 }
 
+bool settles_draws(double alpha, double p, int draws) {
+  return binomial_low_tail_bound(alpha, p, draws) <= kSimulateScreenRisk;
+}
+
+// Stage 0: the floors W_up * tail_floor(mu_c).at_least and
+// W_low * tail_floor(mu_c).at_most, no special function. Settles the record
+// (filling `out`) only when both floors clear alpha as stage 1 would and
+// also exceed `wanted`; otherwise stage 1 runs as if this one had not, so
+// what the caller sees of an unsettled record is unchanged.
+bool settle_without_tails(double w_up, double w_low, const NoiseAt& centre, std::int64_t observed, double alpha,
+                          int draws, double wanted, ScreenOutcome& out) {
+  const double needed = alpha * (1 + kScreenMargin);
+  if (draws > 0) {
+    // The draws estimate the true mixture (weight 1/2 each side); aim at
+    // kSimulateAim * alpha, far enough above alpha for the Chernoff test
+    // with the default draws (checked below with the real test).
+    w_up = std::min(w_up, 0.5);
+    w_low = std::min(w_low, 0.5);
+  }
+  const double goal = std::max({needed, wanted, draws > 0 ? kSimulateAim * alpha : 0.0});
+  if (!(w_up > 0 && w_low > 0 && goal < 1)) return false;
+  const TailFloor f = tail_floor(centre, observed, goal / std::min(w_up, w_low));
+  double high = w_up * f.at_least;
+  double low = w_low * f.at_most;
+  if (draws > 0) {
+    high *= 1 - kScreenMargin;
+    low *= 1 - kScreenMargin;
+    if (!settles_draws(alpha, high, draws) || !settles_draws(alpha, low, draws)) return false;
+  }
+  if (!(high > needed && low > needed && high > wanted && low > wanted)) return false;
+  out.settled = true;
+  out.stage = 0;
+  out.p_high_floor = high;
+  out.p_low_floor = low;
+  return true;
+}
+
 }  // namespace
 
 ScreenOutcome screen_record(const Predictor& predictor, const CountNoise& noise, std::int64_t observed,
-                            int nodes, double alpha, int draws) {
+                            int nodes, double alpha, int draws, double wanted) {
   ScreenOutcome out;
   const QuadratureRule rule = choose_rule(predictor, noise, nodes, alpha);
   const NoiseAt centre = noise_at(noise, mean_from_eta(noise.link, predictor.eta_mean));
   const Walk w = walk_nodes(predictor, noise, rule, centre);
   out.expected = w.expected;
   if (observed < 0) return out;  // p_low = 0: leave it to the full evaluation
+
+  if (settle_without_tails(w.w_up, w.w_low, centre, observed, alpha, draws, wanted, out)) return out;
 
   const Tails t = tails_at(centre, observed);
   out.p_high_floor = w.w_up * at_least(t, observed);
@@ -165,7 +205,7 @@ ScreenOutcome screen_record(const Predictor& predictor, const CountNoise& noise,
     // so take the smaller.
     double high = std::min(out.p_high_floor, 0.5 * at_least(t, observed)) * (1 - kScreenMargin);
     double low = std::min(out.p_low_floor, 0.5 * std::min(t.cdf, 1.0)) * (1 - kScreenMargin);
-    const auto settles = [&](double p) { return binomial_low_tail_bound(alpha, p, draws) <= kSimulateScreenRisk; };
+    const auto settles = [&](double p) { return settles_draws(alpha, p, draws); };
     out.stage = 1;
     const double sd = std::sqrt(predictor.eta_variance);
     if ((!settles(high) || !settles(low)) && sd > 0) {

@@ -1,6 +1,16 @@
 // Internal to bounds: a cheap test that settles "no alert" for a record
 // before the full bound search (quadrature) or the draws (simulate).
 //
+// Stage 0 uses no special function: the same weights W_up and W_low (below)
+// times floors on the tails at mu_c from a run of pmf terms and Cantelli's
+// inequality (tail_floor.h), each provably below the exact tail with its
+// rounding charged. It settles most records near their mean; a record it
+// leaves goes on to stage 1 exactly as if stage 0 had not run. It settles a
+// record only when both floors also exceed the caller's `wanted` level
+// (Options::wanted_floor): the engine reads a settled record's floors to
+// decide whether to refit on doubt, and floors cheaper but lower than
+// stage 1's would otherwise refit more often.
+//
 // Most records sit near their expected count. For them one Boost.Math tail
 // at the central mean mu_c = g^{-1}(eta_mean) gives lower bounds on both
 // p-values of the quadrature mixture (mixture.h):
@@ -53,19 +63,23 @@ inline constexpr double kScreenMargin = 1e-6;
 inline constexpr double kSimulateScreenRisk = 1e-12;
 // Bands per side in stage 2 (the centre band and two outer ones).
 inline constexpr int kScreenBands = 3;
+// Simulate: stage 0 aims its floors at this multiple of alpha (the Chernoff
+// test of 10,000 draws at alpha 1e-3 passes from about 4 alpha).
+inline constexpr double kSimulateAim = 20;
 
 struct ScreenOutcome {
   bool settled = false;   // no alert on either side: the full evaluation is not needed
   double expected = 0;    // the quadrature mixture's E[Y] (what quadrature_bounds reports)
   double p_high_floor = 0;  // lower bound on P(Y >= observed) (simulate: of the true mixture after stage 2)
   double p_low_floor = 0;   // lower bound on P(Y <= observed)
-  int stage = 0;            // the last stage tried (1 or 2); 0 when none was
+  int stage = -1;           // the last stage tried (0, 1 or 2); -1 when none was
 };
 
 // Preconditions as quadrature_bounds (evaluate checks them). `draws` is 0
-// for quadrature, the number of draws for simulate.
+// for quadrature, the number of draws for simulate. `wanted`: stage 0
+// settles a record only when both floors exceed it (0: alpha alone).
 ScreenOutcome screen_record(const Predictor& predictor, const CountNoise& noise, std::int64_t observed,
-                            int nodes, double alpha, int draws);
+                            int nodes, double alpha, int draws, double wanted = 0);
 
 // exp(-K KL(alpha || p)) for p > alpha: the Chernoff bound on a binomial
 // fraction of K trials with success probability p falling to alpha or below.

@@ -52,7 +52,7 @@ class Reader {
   void read_model(const toml::table& t, std::string_view prefix, ModelSpec& m) {
     check_keys(t, prefix, {"family", "link", "trend", "covariates", "seasons", "window", "min_history", "refit_every", "refit_on_doubt",
                            "reweight", "reweight_threshold", "reweight_rounds", "reweight_mean_correction", "alerted_weight",
-                           "guard_records", "cadence_from", "doubt_factor"});
+                           "guard_records", "cadence_from", "doubt_factor", "step_between_refits"});
     if (auto* v = get<toml::value<int64_t>>(t, "cadence_from", prefix, "an integer")) {
       if (v->get() < 0 || v->get() > 1000000) fail(*v, join(prefix, "cadence_from"), "must be between 0 and 1000000");
       else m.cadence_from = static_cast<std::size_t>(v->get());
@@ -145,6 +145,12 @@ class Reader {
     if (auto* v = get<toml::value<int64_t>>(t, "refit_every", prefix, "an integer")) {
       if (v->get() < 1) fail(*v, join(prefix, "refit_every"), "must be at least 1");
       else m.refit_every = static_cast<std::size_t>(v->get());
+    }
+    if (auto* v = get<toml::value<bool>>(t, "step_between_refits", prefix, "true or false")) {
+      // The step's sums are written for the log link (series/window_step.h).
+      if (v->get() && m.link != glm::Link::log)
+        fail(*v, join(prefix, "step_between_refits"), "needs link = \"log\"");
+      else m.step_between_refits = v->get();
     }
   }
 

@@ -46,6 +46,9 @@ struct ModelSpec {
   double doubt_factor = 10;              // refit_on_doubt's margin over alpha, 1-1e6 (larger: more refits)
   std::size_t cadence_from = 0;          // with refit_every > 1: refit after every record while the window
                                          // holds fewer records than this (a young series' fit moves fast)
+  bool step_between_refits = false;      // log link, with refit_every > 1: after every record that is not a
+                                         // full refit, move the fit by one Newton step on the current window
+                                         // from the last full refit (series/window_step.h)
   // Outbreak-resistant training (docs/detection.md). After each fit, records
   // whose standardized Anscombe residual exceeds reweight_threshold get
   // prior weight proportional to residual^-2 and the model is refitted once

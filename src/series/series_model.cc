@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <cstdint>
 #include <limits>
 
 #include "series/design.h"
@@ -26,7 +27,8 @@ SeriesModel::SeriesModel(std::string id, const SeriesSettings& settings)
       covariate_values_(settings.model.covariates.size(), window_rows(settings.model)),
       scales_(2, window_rows(settings.model)),
       season_values_(static_cast<std::size_t>(season_column_count(settings.model)), window_rows(settings.model)),
-      seasons_per_row_(season_column_count(settings.model)) {}
+      seasons_per_row_(season_column_count(settings.model)),
+      fit_weights_(1, window_rows(settings.model)) {}
 
 std::optional<std::string> SeriesModel::missing_covariate(const Observation& obs) const {
   for (const std::string& name : settings_->model.covariates)
@@ -44,17 +46,7 @@ bool SeriesModel::ready() const {
 
 std::optional<TimePoint> SeriesModel::last_time() const {
   if (records_.empty()) return std::nullopt;
-  return time_at(records_.size() - 1);
-}
-
-std::vector<double> SeriesModel::covariates_of(const Observation& obs) const {
-  std::vector<double> values;
-  values.reserve(settings_->model.covariates.size());
-  for (const std::string& name : settings_->model.covariates) {
-    const double* v = obs.covariate(name);
-    values.push_back(v ? *v : std::numeric_limits<double>::quiet_NaN());
-  }
-  return values;
+  return newest_;
 }
 
 double SeriesModel::row_for(TimePoint time, double exposure, const double* covariates,
@@ -64,13 +56,39 @@ double SeriesModel::row_for(TimePoint time, double exposure, const double* covar
 }
 
 Prediction SeriesModel::predict(const Observation& obs, bool allow_screen) const {
-  const std::vector<double> cov = covariates_of(obs);
-  Eigen::RowVectorXd x(p_);
-  const double offset = row_for(obs.time, obs.exposure, cov.data(), x);
+  // No allocation per record for the usual model sizes: the design row, the
+  // covariates and Cov * x live on the stack (heap beyond kStackColumns).
+  // The products are Eigen's, on aligned maps of dynamic size, so they run
+  // the same kernels in the same order as on heap vectors: the same bits.
+  constexpr std::size_t kStackColumns = 16;
+  alignas(64) double x_stack[kStackColumns];
+  alignas(64) double cx_stack[kStackColumns];
+  double cov_stack[kStackColumns];
+  std::vector<double> heap;
+  const std::size_t columns = static_cast<std::size_t>(p_);
+  const std::size_t covariates = settings_->model.covariates.size();
+  double* x_data = x_stack;
+  double* cx_data = cx_stack;
+  double* cov = cov_stack;
+  if (columns > kStackColumns || covariates > kStackColumns) {
+    heap.resize(2 * columns + covariates + 8);
+    // Aligned16 below: start both vectors on a 16-byte boundary.
+    double* base = heap.data() + (reinterpret_cast<std::uintptr_t>(heap.data()) % 16 == 0 ? 0 : 1);
+    x_data = base;
+    cx_data = base + columns + (columns % 2);
+    cov = cx_data + columns + (columns % 2);
+  }
+  for (std::size_t i = 0; i < covariates; ++i) {
+    const double* v = obs.covariate(settings_->model.covariates[i]);
+    cov[i] = v ? *v : std::numeric_limits<double>::quiet_NaN();
+  }
+  Eigen::Map<Eigen::RowVectorXd, Eigen::Aligned16> x(x_data, p_);
+  const double offset = row_for(obs.time, obs.exposure, cov, x);
 
   Prediction out;
   const double linear = x.dot(fit_.coefficients);
-  const Eigen::VectorXd cx = fit_.covariance * x.transpose();
+  Eigen::Map<Eigen::VectorXd, Eigen::Aligned16> cx(cx_data, p_);
+  cx.noalias() = fit_.covariance * x.transpose();
   out.predictor.eta_mean = linear + offset;
   out.predictor.eta_variance = std::max(0.0, x.dot(cx));
   out.noise.family = settings_->model.family;
@@ -85,6 +103,9 @@ Prediction SeriesModel::predict(const Observation& obs, bool allow_screen) const
   options.quadrature_nodes = a.quadrature_nodes;
   options.alpha = a.alpha;
   options.screen = allow_screen && a.screen;
+  // The engine refits on doubt unless both floors exceed this (engine.h):
+  // the screen's cheapest floors must not make it refit more often.
+  if (settings_->model.refit_on_doubt && since_refit_ > 0) options.wanted_floor = settings_->model.doubt_factor * a.alpha;
   if (a.method == bounds::Method::simulate) {
     bounds::Rng rng = bounds::Rng::for_record(a.seed, id_, obs.time.time_since_epoch().count());
     out.bounds = bounds::evaluate(out.predictor, out.noise, obs.count, options, &rng);
@@ -118,6 +139,7 @@ void SeriesModel::learn(const Observation& obs, double weight) {
   if (limit && *limit > 0 && records_.size() >= *limit) drop_oldest(records_.size() - *limit + 1);
   push_record(obs.time, obs.count);
   push_scales(obs.exposure, weight);
+  newest_ = obs.time;
   if (!settings_->model.covariates.empty()) {
     double* row = covariate_values_.push_back();
     for (const std::string& name : settings_->model.covariates) {
@@ -128,14 +150,118 @@ void SeriesModel::learn(const Observation& obs, double weight) {
   if (seasons_per_row_ > 0) push_season_values(obs.time);
   trim_window(obs.time);
   ++since_refit_;
+  // A restored series has no step sums: it refits at its first record.
+  const bool steps = steps_on();
   if (records_.size() >= min_history() + settings_->model.guard_records &&
       (since_refit_ >= settings_->model.refit_every || !has_fit_ ||
-       records_.size() < settings_->model.cadence_from)) {
+       records_.size() < settings_->model.cadence_from || (steps && !step_.active()))) {
     refit();
+  } else if (steps && step_.active()) {
+    step_forward();
+  }
+}
+
+bool SeriesModel::steps_on() const {
+  const ModelSpec& spec = settings_->model;
+  return spec.step_between_refits && spec.refit_every > 1 && spec.link == glm::Link::log;
+}
+
+double SeriesModel::stored_row(std::size_t i) {
+  const TimePoint time = time_at(i);
+  const double* cov = covariate_values_.row(i);
+  if (!season_cache_ok()) return row_for(time, exposure_at(i), cov, step_x_);
+  const DesignInput in{time, origin_.value_or(time), exposure_at(i), cov};
+  return design_row(settings_->model, in, season_values_.row(i), step_x_);
+}
+
+void SeriesModel::start_steps(const Eigen::VectorXd& fit_weights, const Correction& correction, double gamma) {
+  step_correction_ = correction;
+  step_gamma_ = gamma;
+  Eigen::VectorXd beta_star = fit_.coefficients;
+  if (beta_star.size() > 0) beta_star(0) += correction.mean_shift;  // the resistant fit's own intercept
+  step_.reset(beta_star, settings_->model.family, fit_.theta);
+  step_x_.resize(p_);
+  fit_weights_.clear();
+  for (Eigen::Index i = 0; i < X_.rows(); ++i) {
+    const Eigen::RowVectorXd row = X_.row(i);
+    step_.account(row.data(), offset_(i), y_(i), fit_weights(i), 1);
+    *fit_weights_.push_back() = fit_weights(i);
+  }
+  const std::size_t n = step_.rows();
+  step_phi_start_ = n > static_cast<std::size_t>(p_) ? step_.pearson() / static_cast<double>(n - p_) : 1;
+  if (!(step_phi_start_ > 0)) step_phi_start_ = 1;
+}
+
+double SeriesModel::step_weight(double offset, double y, double prior) const {
+  const ModelSpec& spec = settings_->model;
+  if (!spec.reweight || !(prior > 0)) return prior;
+  // As resistant_weights, against the published fit.
+  const double eta = step_x_.dot(fit_.coefficients) + offset;
+  const double mu = std::exp(eta);
+  if (!(mu > 1e-12) || !std::isfinite(mu)) return step_gamma_ * prior;
+  const double threshold = spec.reweight_threshold;
+  if (threshold >= 0 && !(y > mu)) return step_gamma_ * prior;
+  const double phi = spec.family == glm::Family::quasipoisson && std::isfinite(fit_.dispersion) && fit_.dispersion > 0
+                         ? fit_.dispersion
+                         : 1.0;
+  const bool nb = spec.family == glm::Family::negbin && std::isfinite(fit_.theta) && fit_.theta > 0;
+  const double variance = nb ? mu + mu * mu / fit_.theta : mu;
+  const double quadratic = step_x_.dot(fit_.covariance * step_x_.transpose());
+  const double h = std::clamp(prior * mu * mu / variance * quadratic / phi, 0.0, 0.99);
+  const double mu23 = std::cbrt(mu * mu);
+  const double anscombe = 1.5 * (std::cbrt(y * y) - mu23) / std::sqrt(std::sqrt(mu23));
+  const double index = nb ? 1 + mu / fit_.theta : phi;
+  const double z = anscombe / std::sqrt(index * (1 - h));
+  return step_gamma_ * (z > threshold ? prior / (z * z) : prior);
+}
+
+void SeriesModel::step_forward() {
+  const std::size_t guard = settings_->model.guard_records;
+  while (fit_weights_.size() + guard < records_.size()) {
+    const std::size_t i = fit_weights_.size();
+    const double offset = stored_row(i);
+    const double y = static_cast<double>(count_at(i));
+    const double w = step_weight(offset, y, weight_at(i));
+    step_.account(step_x_.data(), offset, y, w, 1);
+    *fit_weights_.push_back() = w;
+  }
+  Eigen::VectorXd beta;
+  Eigen::MatrixXd inverse;
+  if (!step_.solve(beta, inverse)) {
+    refit();  // no step from these sums (an aliased column): the full fit decides
+    return;
+  }
+  const std::size_t n = step_.rows();
+  // Far from beta*, or on a window that no longer fits it: refit fully.
+  const double scale = settings_->model.family == glm::Family::quasipoisson ? step_phi_start_ : 1.0;
+  const double phi_now = n > static_cast<std::size_t>(p_) ? step_.pearson() / static_cast<double>(n - p_) : 0;
+  if (!(step_.distance2(beta) <= kMaxStepDistance * kMaxStepDistance * scale) ||
+      !(phi_now <= kMaxStepDispersionGrowth * step_phi_start_)) {
+    refit();
+    return;
+  }
+  fit_.coefficients = beta;
+  if (fit_.coefficients.size() > 0) fit_.coefficients(0) -= step_correction_.mean_shift;
+  fit_.n = static_cast<int>(n);
+  fit_.df_residual = static_cast<int>(n) - p_;
+  if (settings_->model.family == glm::Family::quasipoisson && fit_.df_residual > 0) {
+    fit_.dispersion = step_.pearson() / fit_.df_residual / step_correction_.dispersion_divisor;
+    fit_.covariance = fit_.dispersion * inverse;
+  } else {
+    fit_.covariance = inverse;
   }
 }
 
 void SeriesModel::drop_oldest(std::size_t rows) {
+  if (step_.active()) {
+    // The records leaving the window take their terms out of the sums.
+    const std::size_t in_fit = std::min(rows, fit_weights_.size());
+    for (std::size_t i = 0; i < in_fit; ++i) {
+      const double offset = stored_row(i);
+      step_.account(step_x_.data(), offset, static_cast<double>(count_at(i)), *fit_weights_.row(i), -1);
+    }
+    fit_weights_.pop_front(in_fit);
+  }
   records_.pop_front(rows);
   if (!wide_.empty()) wide_.pop_front(rows);
   if (!scales_.empty()) scales_.pop_front(rows);
@@ -208,6 +334,11 @@ void SeriesModel::refit() {
   last_fit_note_ = result.note;
   // A failed fit keeps the previous coefficients; a non-converged one is used
   // only when there is nothing better.
+  const bool steps = steps_on();
+  Eigen::VectorXd fit_weights;
+  if (steps) fit_weights = weights_;
+  Correction correction;
+  double gamma = 1;
   if (result.status == glm::FitStatus::ok && settings_->model.reweight) {
     // Outbreak-resistant refit: down-weight outlying records and fit once
     // more from the previous fit (Farrington et al. 1996; Noufaily et al.
@@ -218,26 +349,32 @@ void SeriesModel::refit() {
     // outbreak records fall below the threshold (masking).
     bool corrected = false;
     for (std::size_t round = 0; round < settings_->model.reweight_rounds; ++round) {
-      Eigen::VectorXd resistant = resistant_weights(result);
+      double round_gamma = 1;
+      Eigen::VectorXd resistant = resistant_weights(result, &round_gamma);
       if (resistant.size() == 0) break;
       glm::FitResult next = glm::fit_glm(X_, y_, offset_, resistant, options, &result.coefficients, true);
       ++fits_done_;
       if (next.status != glm::FitStatus::ok) break;
       result = std::move(next);
-      correct_resistant_fit(result);
+      correction = correct_resistant_fit(result);
       corrected = true;
+      if (steps) fit_weights = std::move(resistant);
+      gamma = round_gamma;
     }
-    if (!corrected) correct_resistant_fit(result);
+    if (!corrected) correction = correct_resistant_fit(result);
   }
-  if (result.status == glm::FitStatus::ok ||
-      (result.status == glm::FitStatus::not_converged && !has_fit_)) {
+  const bool converged = result.status == glm::FitStatus::ok;
+  if (converged || (result.status == glm::FitStatus::not_converged && !has_fit_)) {
     fit_ = std::move(result);
     has_fit_ = true;
   }
+  // Steps start only from a converged fit; otherwise the next record refits.
+  if (steps && converged) start_steps(fit_weights, correction, gamma);
+  else step_.clear();
   release_workspace();
 }
 
-void SeriesModel::correct_resistant_fit(glm::FitResult& result) const {
+SeriesModel::Correction SeriesModel::correct_resistant_fit(glm::FitResult& result) const {
   // The weighted Pearson statistic of the resistant fit lacks the largest
   // residuals, so its quasi-Poisson phi runs low even with no outbreak;
   // divide by the expected shrinkage (series/resistant_dispersion.h). The
@@ -250,7 +387,8 @@ void SeriesModel::correct_resistant_fit(glm::FitResult& result) const {
   const ModelSpec& spec = settings_->model;
   const bool quasi = spec.family == glm::Family::quasipoisson && result.dispersion > 0;
   const bool mean_fix = spec.reweight_mean_correction && spec.link == glm::Link::log;
-  if (!quasi && !mean_fix) return;
+  Correction applied;
+  if (!quasi && !mean_fix) return applied;
   // At the window's average fitted mean, and at the corrected phi (one
   // step: the factor moves slowly with phi).
   const Eigen::VectorXd eta = X_ * result.coefficients + offset_;
@@ -266,9 +404,13 @@ void SeriesModel::correct_resistant_fit(glm::FitResult& result) const {
   if (quasi) {
     result.covariance /= moments.dispersion_factor;
     result.dispersion /= moments.dispersion_factor;
+    applied.dispersion_divisor = moments.dispersion_factor;
   }
-  if (mean_fix && moments.mean_factor > 0 && result.coefficients.size() > 0)
-    result.coefficients(0) -= std::log(moments.mean_factor);  // column 0 is the intercept (series/design.h)
+  if (mean_fix && moments.mean_factor > 0 && result.coefficients.size() > 0) {
+    applied.mean_shift = std::log(moments.mean_factor);
+    result.coefficients(0) -= applied.mean_shift;  // column 0 is the intercept (series/design.h)
+  }
+  return applied;
 }
 
 void SeriesModel::release_workspace() {
@@ -281,7 +423,7 @@ void SeriesModel::release_workspace() {
   weights_.resize(0);
 }
 
-Eigen::VectorXd SeriesModel::resistant_weights(const glm::FitResult& fit) const {
+Eigen::VectorXd SeriesModel::resistant_weights(const glm::FitResult& fit, double* gamma) const {
   const Eigen::Index n = X_.rows();
   const glm::Family family = settings_->model.family;
   const glm::Link link = settings_->model.link;
@@ -328,7 +470,9 @@ Eigen::VectorXd SeriesModel::resistant_weights(const glm::FitResult& fit) const 
   // gamma: keep the total prior weight (Farrington et al. 1996).
   const double total = w.sum();
   if (!(total > 0)) return {};
-  w *= weights_.sum() / total;
+  const double scale = weights_.sum() / total;
+  w *= scale;
+  if (gamma != nullptr) *gamma = scale;
   return w;
 }
 

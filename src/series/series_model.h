@@ -23,6 +23,7 @@
 #include "series/design.h"
 #include "series/model_spec.h"
 #include "series/ring.h"
+#include "series/window_step.h"
 
 namespace tallyd {
 
@@ -57,7 +58,10 @@ class SeriesModel {
   // With `allow_screen` and alert.screen on, a record that provably raises
   // no bound alert may come back with bounds.screened set (no integer
   // bounds; see bounds::Bounds); calling again without it gives the full
-  // bounds of the same record (the draws are seeded per record).
+  // bounds of the same record (the draws are seeded per record). While
+  // model.refit_on_doubt may act (records learned since the last refit), the
+  // screen keeps a settled record's floors above model.doubt_factor * alpha
+  // whenever its exact tails would (bounds::Options::wanted_floor).
   Prediction predict(const Observation& obs, bool allow_screen = false) const;
 
   // Adds `obs` to the training history, trims the window, refits if due.
@@ -117,6 +121,24 @@ class SeriesModel {
   void build_design(Eigen::MatrixXd& X, Eigen::VectorXd& y, Eigen::VectorXd& offset,
                     Eigen::VectorXd& weights, std::size_t rows) const;
   glm::FitOptions fit_options() const;
+  // model.step_between_refits (series/window_step.h). What the last full
+  // refit's resistant correction did, so that each step publishes a fit
+  // corrected the same way.
+  struct Correction {
+    double dispersion_divisor = 1;  // quasi-Poisson phi and covariance divided by this
+    double mean_shift = 0;          // log of the mean factor taken from the intercept
+  };
+  bool steps_on() const;
+  // After a full refit of the current design (X_, y_, offset_): the sums at
+  // its coefficients over the records it used, with the weights it used.
+  void start_steps(const Eigen::VectorXd& fit_weights, const Correction& correction, double gamma);
+  // The design row (into step_x_) and offset of the window's record i.
+  double stored_row(std::size_t i);
+  // The prior weight a record enters the step sums with: the resistant
+  // down-weighting against the current fit, as resistant_weights gives it.
+  double step_weight(double offset, double y, double prior) const;
+  // Adds the records that entered the fit since, then publishes the step.
+  void step_forward();
   // Prior weights for the resistant refit after `fit` of the current design
   // (X_, y_, offset_, weights_): records with standardized Anscombe residual
   // above model.reweight_threshold get weight / residual^2, all rescaled to
@@ -126,11 +148,11 @@ class SeriesModel {
   // model.reweight_mean_correction (log link) its mean by the expected
   // shrinkage of the weighted mean (series/resistant_dispersion.h). Reads the
   // design of the current refit.
-  void correct_resistant_fit(glm::FitResult& result) const;
-  Eigen::VectorXd resistant_weights(const glm::FitResult& fit) const;
+  Correction correct_resistant_fit(glm::FitResult& result) const;
+  // `gamma`, when not null, receives the factor all weights were scaled by.
+  Eigen::VectorXd resistant_weights(const glm::FitResult& fit, double* gamma = nullptr) const;
   double row_for(TimePoint time, double exposure, const double* covariates,
                  RowRef row) const;
-  std::vector<double> covariates_of(const Observation& obs) const;
 
   std::string id_;
   const SeriesSettings* settings_;
@@ -182,12 +204,26 @@ class SeriesModel {
   void fill_season_cache();
   void push_season_values(TimePoint time);
   std::size_t since_refit_ = 0;
+  // The newest record's time (when records_ is not empty), kept beside the
+  // rest of the model: last_time() is asked for every record, and reading
+  // the ring's far end was a cache miss per record.
+  TimePoint newest_{};
 
   glm::FitResult fit_;
   bool has_fit_ = false;
   glm::FitStatus last_fit_status_ = glm::FitStatus::failed;
   std::string last_fit_note_ = "not fitted yet";
   std::uint64_t fits_done_ = 0;
+
+  // model.step_between_refits: the sums (empty when off, and after a
+  // restore until the next full refit) and the weight each of the window's
+  // oldest fit_weights_.size() records entered them with.
+  WindowStep step_;
+  Ring<double> fit_weights_;
+  Correction step_correction_;
+  double step_gamma_ = 1;
+  double step_phi_start_ = 1;  // Pearson's statistic / (n - p) when the sums started
+  Eigen::RowVectorXd step_x_;
 
   // Frees the refit scratch below.
   void release_workspace();

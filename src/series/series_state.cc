@@ -181,6 +181,10 @@ void SeriesModel::save_state(StateWriter& w) const {
 
 void SeriesModel::load_state(StateReader& r) {
   r.expect("model");
+  // The step sums (model.step_between_refits) are not saved: a restored
+  // series refits at its first new record and starts them again.
+  step_.clear();
+  fit_weights_.clear();
   const bool has_origin = r.boolean();
   const std::int64_t origin = r.i64();
   origin_.reset();
@@ -254,6 +258,7 @@ void SeriesModel::load_state(StateReader& r) {
       for (std::uint64_t c = 0; c < k; ++c) cov[c] = r.f64();
     }
   }
+  if (!records_.empty()) newest_ = time_at(records_.size() - 1);
   load_fit(r, fit_, p_);
 }
 

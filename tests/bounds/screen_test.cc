@@ -16,12 +16,13 @@ using tallyd::glm::Link;
 
 TEST_CASE("screen: with no parameter uncertainty the floors are the exact Poisson tails", "[bounds][screen]") {
   // Reference: Boost.Math's poisson_distribution (independent of the noise
-  // code under test). One component of weight 1, so the floors are the tails.
+  // code under test). One component of weight 1, so the floors are the tails
+  // (stage 1's; wanted = 1 keeps stage 0, whose floors are lower, out).
   const Predictor p{std::log(12.0), 0};
   const CountNoise noise;  // Poisson, log link
   const boost::math::poisson_distribution<double> poisson(12.0);
   for (std::int64_t y : {0, 3, 12, 20, 30}) {
-    const ScreenOutcome s = screen_record(p, noise, y, 48, 0.001, 0);
+    const ScreenOutcome s = screen_record(p, noise, y, 48, 0.001, 0, 1.0);
     const double cdf = boost::math::cdf(poisson, static_cast<double>(y));
     const double at_least = y == 0 ? 1.0 : boost::math::cdf(boost::math::complement(poisson, static_cast<double>(y - 1)));
     CHECK(s.p_low_floor == Approx(cdf).epsilon(1e-10));
@@ -155,4 +156,82 @@ TEST_CASE("screen: simulate's stage 2 settles only records far from the draws' v
   }
   CHECK(checked == 136);
   CHECK(second > 5);  // stage 2 settled records stage 1 could not
+}
+
+TEST_CASE("screen stage 0: settles only what the full quadrature leaves unflagged, below its p-values, and keeps "
+          "the doubt test's answer",
+          "[bounds][screen]") {
+  // Stage 0 has no special function; its floors must still lie below the
+  // full quadrature's p-values (themselves checked against Boost.Math's
+  // adaptive Gauss-Kronrod in quadrature_test.cc). `wanted` plays the
+  // engine's refit-on-doubt level: a record's "both floors above it" must
+  // come out as with exact tails (wanted = 1 turns stage 0 off).
+  const double alpha = 0.001;
+  const double doubt = 30 * alpha;
+  std::vector<CountNoise> noises;
+  noises.push_back(CountNoise{Family::poisson, Link::log, 1, 0});
+  noises.push_back(CountNoise{Family::quasipoisson, Link::log, 2.5, 0});
+  noises.push_back(CountNoise{Family::negbin, Link::log, 1, 4.0});
+  noises.push_back(CountNoise{Family::negbin, Link::log, 1, 0.7});
+  int stage0 = 0, checked = 0;
+  for (const CountNoise& noise : noises) {
+    for (double mean : {0.4, 3.0, 30.0, 400.0, 5000.0}) {
+      for (double variance : {0.0, 0.01, 0.2}) {
+        const Predictor p{std::log(mean), variance};
+        for (double factor : {0.0, 0.3, 0.6, 0.8, 0.9, 1.0, 1.1, 1.2, 1.5, 2.0, 4.0}) {
+          const auto y = static_cast<std::int64_t>(std::floor(factor * mean));
+          const Bounds full = quadrature_bounds(p, noise, y, 48, alpha);
+          const bool alert = full.p_high <= alpha || full.p_low <= alpha;
+          const ScreenOutcome exact_only = screen_record(p, noise, y, 48, alpha, 0, 1.0);
+          CHECK(exact_only.stage != 0);
+          for (double wanted : {0.0, doubt}) {
+            const ScreenOutcome s = screen_record(p, noise, y, 48, alpha, 0, wanted);
+            ++checked;
+            CHECK(s.expected == full.expected);
+            CHECK(s.p_high_floor <= full.p_high * (1 + 1e-9));
+            CHECK(s.p_low_floor <= full.p_low * (1 + 1e-9));
+            if (s.settled) CHECK_FALSE(alert);
+            if (s.stage == 0) {
+              ++stage0;
+              CHECK(s.settled);
+              CHECK(s.p_high_floor > wanted);
+              CHECK(s.p_low_floor > wanted);
+            }
+            if (wanted == doubt) {
+              const bool clear = s.p_high_floor > doubt && s.p_low_floor > doubt;
+              const bool clear_exact = exact_only.p_high_floor > doubt && exact_only.p_low_floor > doubt;
+              CHECK(clear == clear_exact);
+              CHECK(s.settled == exact_only.settled);
+            }
+          }
+        }
+      }
+    }
+  }
+  // Stage 0 carries a good share of the records, so the checks above bite.
+  CHECK(stage0 > checked / 4);
+}
+
+TEST_CASE("screen stage 0 with simulate: settled records' floors clear the Chernoff test", "[bounds][screen]") {
+  const double alpha = 0.001;
+  const int draws = 10000;
+  const CountNoise noise{Family::quasipoisson, Link::log, 2.0, 0};
+  int stage0 = 0;
+  for (double mean : {2.0, 40.0, 900.0}) {
+    const Predictor p{std::log(mean), 0.02};
+    for (double factor : {0.0, 0.7, 1.0, 1.3, 3.0}) {
+      const auto y = static_cast<std::int64_t>(std::floor(factor * mean));
+      const ScreenOutcome s = screen_record(p, noise, y, 48, alpha, draws);
+      const ScreenOutcome exact_only = screen_record(p, noise, y, 48, alpha, draws, 1.0);
+      if (s.stage == 0) {
+        ++stage0;
+        CHECK(binomial_low_tail_bound(alpha, s.p_high_floor, draws) <= kSimulateScreenRisk);
+        CHECK(binomial_low_tail_bound(alpha, s.p_low_floor, draws) <= kSimulateScreenRisk);
+        CHECK(exact_only.settled);  // stage 0's floors are below the exact stages'
+        CHECK(s.p_high_floor <= exact_only.p_high_floor);
+        CHECK(s.p_low_floor <= exact_only.p_low_floor);
+      }
+    }
+  }
+  CHECK(stage0 >= 4);
 }

@@ -92,6 +92,7 @@ TEST_CASE("every config error names the file, the line and the key", "[config]")
       {"[model]\nalerted_weight = 2\n", "monitor.toml:2: model.alerted_weight: must be a number between 0 and 1"},
       {"[model]\ncadence_from = -1\n", "monitor.toml:2: model.cadence_from: must be between 0 and 1000000"},
       {"[model]\ndoubt_factor = 0.5\n", "monitor.toml:2: model.doubt_factor: must be a number between 1 and 1000000"},
+      {"[model]\nlink = \"sqrt\"\nstep_between_refits = true\n", "monitor.toml:3: model.step_between_refits: needs link = \"log\""},
       {"[detect]\nshift_factor = 1\n", "monitor.toml:2: detect.shift_factor: must be a number above 1"},
       {"[detect]\nlow_run_alpha = 0\n", "monitor.toml:2: detect.low_run_alpha: must be"},
       {"[detect]\nshfit = true\n", "monitor.toml:2: detect.shfit: unknown key"},
@@ -116,6 +117,7 @@ alerted_weight = 0.25
 guard_records = 3
 cadence_from = 90
 doubt_factor = 40
+step_between_refits = true
 [detect]
 shift = true
 shift_factor = 1.5
@@ -139,6 +141,7 @@ detect.shift = false
   CHECK(d.model.guard_records == 3);
   CHECK(d.model.cadence_from == 90);
   CHECK(d.model.doubt_factor == 40);
+  CHECK(d.model.step_between_refits);
   CHECK(d.detect.shift);
   CHECK(d.detect.shift_factor == 1.5);
   CHECK(d.detect.shift_arl_records == 1000);

@@ -127,3 +127,41 @@ TEST_CASE("refit cadence: every 28th record on doubt at 30 alpha from 60 records
   CHECK(static_cast<double>(differ) <= 0.001 * static_cast<double>(judged));
   CHECK(std::abs(static_cast<double>(lazy_alerts) - static_cast<double>(alerts)) <= 0.05 * static_cast<double>(alerts) + 0.5);
 }
+
+// model.step_between_refits (series/window_step.h) with refit on doubt at
+// 10 alpha, a full refit every 91st record and after every record while the
+// window holds fewer than 60: the setting docs/benchmarks.md ("Speed, sixth
+// pass") recommends. Held to the 0.1% rule and the one-alert-in-20 bound, and
+// it must fit fewer times than the fifth pass's setting (every 28th on doubt
+// at 30 alpha), which is what it is for.
+TEST_CASE("refit cadence: a Newton step per record with refit on doubt changes at most 0.1% of verdicts",
+          "[engine][cadence][step]") {
+  const std::vector<Observation> feed = cadence_feed(40, 200);
+  const std::vector<int> every = verdicts(feed, cadence_settings(1, false));
+  SettingsTable stepped = cadence_settings(91, true, 60, 10);
+  stepped.defaults.model.step_between_refits = true;
+  const std::vector<int> lazy = verdicts(feed, stepped);
+  std::size_t judged = 0, differ = 0, alerts = 0, lazy_alerts = 0;
+  for (std::size_t i = 0; i < feed.size(); ++i) {
+    judged += every[i] != 2;
+    alerts += every[i] == 1 || every[i] == -1;
+    lazy_alerts += lazy[i] == 1 || lazy[i] == -1;
+    differ += every[i] != lazy[i];
+  }
+  REQUIRE(judged > 6000);
+  REQUIRE(alerts > 3);
+  CHECK(static_cast<double>(differ) <= 0.001 * static_cast<double>(judged));
+  CHECK(std::abs(static_cast<double>(lazy_alerts) - static_cast<double>(alerts)) <= 0.05 * static_cast<double>(alerts) + 0.5);
+
+  const SettingsTable fifth = cadence_settings(28, true, 60, 30);
+  Engine a(stepped), b(fifth);
+  for (const Observation& o : feed) {
+    a.ingest(o);
+    b.ingest(o);
+  }
+  std::uint64_t fits_step = 0, fits_fifth = 0;
+  for (const auto& [id, model] : a.series()) fits_step += model->fits_done();
+  for (const auto& [id, model] : b.series()) fits_fifth += model->fits_done();
+  INFO("fits: steps " << fits_step << ", every 28th on doubt " << fits_fifth);
+  CHECK(fits_step < fits_fifth);
+}
