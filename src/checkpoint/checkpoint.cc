@@ -5,6 +5,7 @@
 #include <sys/uio.h>
 #include <unistd.h>
 
+#include <algorithm>
 #include <cerrno>
 #include <cstring>
 #include <filesystem>
@@ -12,7 +13,9 @@
 #include <fmt/format.h>
 
 #include "checkpoint/format4.h"
+#include "checkpoint/format5.h"
 #include "checkpoint/parts.h"
+#include "checkpoint/piecewise_read.h"
 #include "core/bulk_memory.h"
 #include "core/state_codec.h"
 
@@ -51,56 +54,69 @@ Status write_all(int fd, std::string_view data, const std::string& path) {
   return Ok{};
 }
 
+Error mismatch(std::string_view name, std::string_view section, const std::string& what) {
+  return Error{fmt::format("{}: checkpoint does not match this build or config ({} section, {}); "
+                           "refusing to load it",
+                           name, section, what)};
+}
+
 Result<Restored> decode_format5(std::string_view rest, std::string_view name, const SettingsTable& settings,
                                 EngineLimits limits, detect::FdrSpec fdr) {
   auto head_bytes = take_section(rest, "head", name);
   if (!head_bytes) return head_bytes.error();
   auto body_bytes = take_section(rest, "body", name);
   if (!body_bytes) return body_bytes.error();
-  if (rest != kEndLine) {
-    if (rest.size() < kEndLine.size() && kEndLine.substr(0, rest.size()) == rest)
-      return Error{fmt::format("{}: checkpoint is truncated (no end line); refusing to load it", name)};
-    return Error{fmt::format("{}: checkpoint is corrupt ({} unexpected bytes after its last section); "
-                             "refusing to load it",
-                             name, rest.size())};
-  }
-
+  if (Status end = check_end(rest, name); !end) return end.error();
   // Sound as far as the checksums can tell: now the content must fit this build and config.
-  auto mismatch = [&](std::string_view section, const std::string& what) {
-    return Error{fmt::format("{}: checkpoint does not match this build or config ({} section, {}); "
-                             "refusing to load it",
-                             name, section, what)};
-  };
-  StateReader head(*head_bytes);
-  Restored out;
+  auto head = read_head(*head_bytes, name);
+  if (!head) return head.error();
+  StateReader body(*body_bytes, StateLayout::binary);
+  return restore_body(body, body_bytes->size(), *head, name, settings, limits, fdr);
+}
+
+}  // namespace
+
+Result<Head> read_head(std::string_view head_bytes, std::string_view name) {
+  StateReader head(head_bytes);
+  Head out;
   out.marks = load_marks(head);
   head.expect("counts");
-  const std::uint64_t series = head.u64(), records = head.u64(), held = head.u64();
+  out.series = head.u64();
+  out.records = head.u64();
+  out.held = head.u64();
   if (!head.failed() && !head.at_end()) head.fail("unexpected data after the counts");
-  if (head.failed()) return mismatch("head", head.error());
+  if (head.failed()) return mismatch(name, "head", head.error());
+  return out;
+}
 
-  StateReader body(*body_bytes, StateLayout::binary);
-  // The series' histories go into one mapping of huge pages, prefaulted in
-  // chunks (core/bulk_memory.h): page faults were most of a restore. A
-  // record takes at least 3 bytes of the body and 32 in memory, a covariate
-  // 8 in both; the bound only reserves address space, and what is not used
-  // is given back at once.
-  const std::shared_ptr<BulkMemory> histories = BulkMemory::create(body_bytes->size() / 3 * 32 + body_bytes->size());
+Result<Restored> restore_body(StateReader& body, std::size_t body_size, Head head, std::string_view name,
+                              const SettingsTable& settings, EngineLimits limits, detect::FdrSpec fdr) {
+  // The series' models and histories go into one mapping of huge pages,
+  // prefaulted in chunks (core/bulk_memory.h): page faults were most of a
+  // restore. A record takes at least 3 bytes of the body and 8 to 40 in
+  // memory (series_model.h; the bound allows 32), a covariate 8 in both, a model its size
+  // (the head's count, checked against the body below; a count beyond the
+  // body's bytes cannot be true); the bound only reserves address space,
+  // and what is not used is given back at once.
+  const std::size_t models = static_cast<std::size_t>(std::min<std::uint64_t>(head.series, body_size));
+  const std::shared_ptr<BulkMemory> histories =
+      BulkMemory::create(body_size / 3 * 32 + body_size + models * (sizeof(SeriesModel) + 64));
   body.offer_memory(histories);
+  Restored out;
+  out.marks = std::move(head.marks);
   out.engine = std::make_unique<Engine>(settings, limits, fdr);
   out.engine->load_state(body);
   if (histories) histories->trim();
   if (!body.failed() && !body.at_end()) body.fail("unexpected data after the engine state");
-  if (body.failed()) return mismatch("body", body.error());
-  if (out.engine->series_count() != series || out.engine->counters().records != records ||
-      out.engine->held_count() != held)
-    return mismatch("head", fmt::format("its counts say {} series, {} records, {} held; the body has {}, {}, {}",
-                                        series, records, held, out.engine->series_count(),
-                                        out.engine->counters().records, out.engine->held_count()));
+  if (body.failed()) return mismatch(name, "body", body.error());
+  if (out.engine->series_count() != head.series || out.engine->counters().records != head.records ||
+      out.engine->held_count() != head.held)
+    return mismatch(name, "head",
+                    fmt::format("its counts say {} series, {} records, {} held; the body has {}, {}, {}",
+                                head.series, head.records, head.held, out.engine->series_count(),
+                                out.engine->counters().records, out.engine->held_count()));
   return out;
 }
-
-}  // namespace
 
 std::string encode(const Engine& engine, const Marks& marks) {
   const Sections s = make_sections(engine, marks);
@@ -168,36 +184,8 @@ Result<Restored> decode(std::string_view text, std::string_view name, const Sett
 
 Result<std::optional<Restored>> read_file(const std::string& path, const SettingsTable& settings,
                                           EngineLimits limits, detect::FdrSpec fdr) {
-  // One read into a buffer of the file's size: a checkpoint can be hundreds of MiB.
-  int fd = ::open(path.c_str(), O_RDONLY | O_CLOEXEC);
-  if (fd < 0) {
-    if (errno == ENOENT) return std::optional<Restored>{};
-    return Error{fmt::format("{}: cannot read checkpoint: {}", path, std::strerror(errno))};
-  }
-  struct stat st {};
-  int error = ::fstat(fd, &st) == 0 ? 0 : errno;
-  const std::size_t size = error == 0 ? static_cast<std::size_t>(st.st_size) : 0;
-  // In huge pages prefaulted in chunks, like the histories (core/bulk_memory.h);
-  // a string of the file's size when that mapping is refused.
-  const std::shared_ptr<BulkMemory> mapped = error == 0 ? BulkMemory::create(size) : nullptr;
-  char* buffer = mapped ? static_cast<char*>(mapped->take(size)) : nullptr;
-  std::string fallback;
-  if (error == 0 && buffer == nullptr) {
-    fallback.resize(size);
-    buffer = fallback.data();
-  }
-  std::size_t got = 0;
-  while (error == 0 && got < size) {
-    const ssize_t n = ::read(fd, buffer + got, size - got);
-    if (n > 0) got += static_cast<std::size_t>(n);
-    else if (n == 0) break;  // shorter than fstat said: decode refuses it as truncated
-    else if (errno != EINTR) error = errno;
-  }
-  ::close(fd);
-  if (error != 0) return Error{fmt::format("{}: cannot read checkpoint: {}", path, std::strerror(error))};
-  auto r = decode(std::string_view(buffer, got), path, settings, limits, fdr);
-  if (!r) return r.error();
-  return std::optional<Restored>{std::move(r).value()};
+  // In pieces of 1 MiB: a checkpoint can be hundreds of MiB, decoded once.
+  return read_file_in_pieces(path, settings, limits, fdr, std::size_t{1} << 20);
 }
 
 }  // namespace tallyd::checkpoint

@@ -92,7 +92,9 @@ struct Restored {
 Result<Restored> decode(std::string_view text, std::string_view name, const SettingsTable& settings,
                         EngineLimits limits, detect::FdrSpec fdr = {});
 
-// Reads `path`. nullopt when there is no file at all (a first start).
+// Reads `path`: the verdict of decode() on its bytes, reached by decoding
+// the body as it is read in pieces (checkpoint/piecewise_read.h). nullopt
+// when there is no file at all (a first start).
 Result<std::optional<Restored>> read_file(const std::string& path, const SettingsTable& settings,
                                           EngineLimits limits, detect::FdrSpec fdr = {});
 

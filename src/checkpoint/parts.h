@@ -22,6 +22,16 @@ std::uint64_t section_checksum(std::string_view bytes);
 // The line that opens a section: "<name> <bytes> <16 hex digits of the checksum>\n".
 std::string section_line(std::string_view name, std::string_view bytes);
 
+// What the line that opens a section says.
+struct SectionLine {
+  std::uint64_t bytes = 0;
+  std::uint64_t checksum = 0;
+};
+
+// Parses the line that opens section `name`, `line` without its newline
+// (npos-free). Errors as take_section's for a damaged line.
+Result<SectionLine> parse_section_line(std::string_view line, std::string_view name, std::string_view file);
+
 // Takes the section `name` (its line and its bytes) off the front of `rest`
 // and returns its bytes once they match their checksum. Errors name `file`
 // and say "truncated" when the text ends too soon, "corrupt" when the line or
@@ -30,5 +40,12 @@ Result<std::string_view> take_section(std::string_view& rest, std::string_view n
 
 // What follows the last section.
 inline constexpr std::string_view kEndLine = "\nend\n";
+
+// Nothing when `rest` (what follows the last section) is exactly kEndLine,
+// else the error: truncated when it is a beginning of it, corrupt otherwise.
+Status check_end(std::string_view rest, std::string_view file);
+
+// The error for a section whose bytes do not match their checksum.
+Error checksum_mismatch(std::string_view name, std::string_view file);
 
 }  // namespace tallyd::checkpoint

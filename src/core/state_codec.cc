@@ -1,7 +1,9 @@
 #include "core/state_codec.h"
 
 #include <bit>
+#include <algorithm>
 #include <charconv>
+#include <cstring>
 
 #include <fmt/format.h>
 
@@ -81,6 +83,30 @@ void StateWriter::str(std::string_view s) {
   out_ += s;
 }
 
+StateReader::StateReader(StateSource& source, std::size_t total, std::size_t piece)
+    : binary_(true), total_(total), source_(&source) {
+  buffer_.resize(std::max<std::size_t>(piece, 16));
+}
+
+bool StateReader::fill(std::size_t n) {
+  if (source_ == nullptr || n > remaining()) return false;
+  // Keep the unread bytes, move them to the front, read after them.
+  const std::size_t unread = text_.size() - pos_;
+  if (n > buffer_.size()) buffer_.resize(n);
+  if (unread != 0 && pos_ != 0) std::memmove(buffer_.data(), text_.data() + pos_, unread);
+  base_ += pos_;
+  pos_ = 0;
+  std::size_t have = unread;
+  const std::size_t want = std::min(buffer_.size(), total_ - base_);
+  while (have < want) {
+    const std::size_t got = source_->read(buffer_.data() + have, want - have);
+    if (got == 0) break;
+    have += got;
+  }
+  text_ = std::string_view(buffer_.data(), have);
+  return have >= n;
+}
+
 std::uint64_t StateReader::leb128() {
   if (failed()) return 0;
   // Most values of a history (flags, counts) fit in one byte.
@@ -88,7 +114,7 @@ std::uint64_t StateReader::leb128() {
     return static_cast<std::uint8_t>(text_[pos_++]);
   std::uint64_t v = 0;
   for (int shift = 0; shift < 64; shift += 7) {
-    if (pos_ == text_.size()) {
+    if (!have(1)) {
       fail("unexpected end of state");
       return 0;
     }
@@ -106,11 +132,11 @@ void StateReader::skip_space() {
 
 bool StateReader::at_end() {
   if (!binary_) skip_space();
-  return pos_ == text_.size();
+  return remaining() == 0;
 }
 
 void StateReader::fail(std::string what) {
-  if (error_.empty()) error_ = fmt::format("at byte {}: {}", pos_, what);
+  if (error_.empty()) error_ = fmt::format("at byte {}: {}", base_ + pos_, what);
 }
 
 std::string_view StateReader::token() {
@@ -125,7 +151,7 @@ std::string_view StateReader::token() {
 void StateReader::expect(std::string_view word) {
   if (binary_) {
     if (failed()) return;
-    if (pos_ == text_.size()) return fail("unexpected end of state");
+    if (!have(1)) return fail("unexpected end of state");
     if (static_cast<std::uint8_t>(text_[pos_]) != tag_byte(word))
       return fail(fmt::format("expected the mark of '{}'", word));
     ++pos_;
@@ -158,7 +184,7 @@ std::int64_t StateReader::i64() {
 double StateReader::f64() {
   if (binary_) {
     if (failed()) return 0;
-    if (text_.size() - pos_ < 8) {
+    if (!have(8)) {
       fail("unexpected end of state");
       return 0;
     }
@@ -187,7 +213,7 @@ std::string StateReader::str() {
   if (binary_) {
     const std::uint64_t len = leb128();
     if (failed()) return {};
-    if (len > text_.size() - pos_) {
+    if (len > remaining() || !have(len)) {
       fail("string runs past the end of the state");
       return {};
     }

@@ -65,10 +65,26 @@ class StateWriter {
   std::string out_;
 };
 
+// Where a streaming StateReader gets the bytes of its state piece by piece
+// (a checkpoint body read from its file without holding all of it).
+class StateSource {
+ public:
+  virtual ~StateSource() = default;
+  // Writes up to `max` of the next bytes to `into` and returns how many; 0
+  // only at the end (or on a read error, which the source keeps).
+  virtual std::size_t read(char* into, std::size_t max) = 0;
+};
+
 class StateReader {
  public:
   explicit StateReader(std::string_view text, StateLayout layout = StateLayout::text)
-      : text_(text), binary_(layout == StateLayout::binary) {}
+      : text_(text), binary_(layout == StateLayout::binary), total_(text.size()) {}
+  // Binary layout only: reads a state of `total` bytes from `source`
+  // through a buffer of `piece` bytes (larger only while one string needs
+  // more), so that the whole state is never in memory at once. Values may
+  // straddle pieces. A state that ends before `total` bytes fails as
+  // "unexpected end of state".
+  StateReader(StateSource& source, std::size_t total, std::size_t piece);
 
   bool binary() const { return binary_; }
   // Fails unless the next token is exactly `word`.
@@ -86,7 +102,7 @@ class StateReader {
   // True when nothing is left (text: only whitespace).
   bool at_end();
   // Bytes not read yet (an upper bound on what the state still holds).
-  std::size_t remaining() const { return text_.size() - pos_; }
+  std::size_t remaining() const { return total_ - (base_ + pos_); }
   // Memory that loaders may carve what they restore out of
   // (core/bulk_memory.h), keeping the shared_ptr while they use it; nullptr
   // (the default) when they should allocate as usual.
@@ -97,9 +113,17 @@ class StateReader {
   std::string_view token();
   void skip_space();
   std::uint64_t leb128();
-  std::string_view text_;
+  // True once at least `n` unread bytes are in text_ (a streaming reader
+  // refills its buffer for them; see fill).
+  bool have(std::size_t n) { return text_.size() - pos_ >= n || fill(n); }
+  bool fill(std::size_t n);
+  std::string_view text_;  // the state, or the buffered piece of a streamed one
   bool binary_;
   std::size_t pos_ = 0;
+  std::size_t total_;         // bytes of the whole state
+  std::size_t base_ = 0;      // bytes of the state before text_ (streaming)
+  StateSource* source_ = nullptr;
+  std::string buffer_;        // streaming: text_ views its first bytes
   std::string error_;
   std::shared_ptr<BulkMemory> memory_;
 };

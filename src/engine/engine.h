@@ -22,6 +22,7 @@
 #include "detect/silence.h"
 #include "engine/arrival_hold.h"
 #include "series/model_spec.h"
+#include "series/model_handle.h"
 #include "series/series_model.h"
 
 namespace tallyd {
@@ -146,7 +147,7 @@ class Engine {
   // Part of the state a checkpoint must keep.
   const detect::DetectorState* detector_state(const std::string& series) const;
   // Series in id order.
-  const std::map<std::string, std::unique_ptr<SeriesModel>>& series() const { return series_; }
+  const std::map<std::string, ModelHandle>& series() const { return series_; }
 
   // Counters and every series model (engine/engine_state.cc; layout of
   // core/state_codec.h). load_state is for a freshly constructed engine with
@@ -165,7 +166,7 @@ class Engine {
 
   const SettingsTable* settings_;
   EngineLimits limits_;
-  std::map<std::string, std::unique_ptr<SeriesModel>> series_;
+  std::map<std::string, ModelHandle> series_;  // heap models, or placed by a restore (series/model_handle.h)
   std::map<std::string, detect::DetectorState> detectors_;  // per-series detector state, same keys as series_
   detect::FdrSpec fdr_;
   detect::FdrState fdr_state_;

@@ -136,7 +136,8 @@ void Engine::load_state(StateReader& r) {
       r.fail(fmt::format("series id '{}' is empty or repeated", id));
       break;
     }
-    auto model = std::make_unique<SeriesModel>(id, settings_->for_series(id));
+    // In the restore's bulk mapping when the reader offers one (series/model_handle.h).
+    ModelHandle model = make_model(id, settings_->for_series(id), r.memory());
     model->load_state(r);
     r.expect("detectors");
     detect::DetectorState d;

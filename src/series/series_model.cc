@@ -24,7 +24,9 @@ SeriesModel::SeriesModel(std::string id, const SeriesSettings& settings)
       settings_(&settings),
       p_(coefficient_count(settings.model)),
       records_(1, window_rows(settings.model)),
+      wide_(1, window_rows(settings.model)),
       covariate_values_(settings.model.covariates.size(), window_rows(settings.model)),
+      scales_(2, window_rows(settings.model)),
       season_values_(static_cast<std::size_t>(season_column_count(settings.model)), window_rows(settings.model)),
       seasons_per_row_(season_column_count(settings.model)),
       fit_weights_(1, window_rows(settings.model)) {}
@@ -125,7 +127,7 @@ void SeriesModel::push_season_values(TimePoint time) {
 void SeriesModel::fill_season_cache() {
   season_values_.clear();
   season_values_.reserve(records_.size());
-  for (std::size_t i = 0; i < records_.size(); ++i) push_season_values(records_.row(i)->time);
+  for (std::size_t i = 0; i < records_.size(); ++i) push_season_values(time_at(i));
 }
 
 void SeriesModel::learn(const Observation& obs, double weight) {
@@ -136,7 +138,8 @@ void SeriesModel::learn(const Observation& obs, double weight) {
   // dropping it after (trim_window drops a prefix either way).
   const std::optional<std::size_t> limit = settings_->model.window.records;
   if (limit && *limit > 0 && records_.size() >= *limit) drop_oldest(records_.size() - *limit + 1);
-  *records_.push_back() = Stored{obs.time, obs.count, obs.exposure, weight};
+  push_record(obs.time, obs.count);
+  push_scales(obs.exposure, weight);
   newest_ = obs.time;
   if (!settings_->model.covariates.empty()) {
     double* row = covariate_values_.push_back();
@@ -165,10 +168,10 @@ bool SeriesModel::steps_on() const {
 }
 
 double SeriesModel::stored_row(std::size_t i) {
-  const Stored& r = *records_.row(i);
+  const TimePoint time = time_at(i);
   const double* cov = covariate_values_.row(i);
-  if (!season_cache_ok()) return row_for(r.time, r.exposure, cov, step_x_);
-  const DesignInput in{r.time, origin_.value_or(r.time), r.exposure, cov};
+  if (!season_cache_ok()) return row_for(time, exposure_at(i), cov, step_x_);
+  const DesignInput in{time, origin_.value_or(time), exposure_at(i), cov};
   return design_row(settings_->model, in, season_values_.row(i), step_x_);
 }
 
@@ -218,9 +221,8 @@ void SeriesModel::step_forward() {
   while (fit_weights_.size() + guard < records_.size()) {
     const std::size_t i = fit_weights_.size();
     const double offset = stored_row(i);
-    const Stored& r = *records_.row(i);
-    const double y = static_cast<double>(r.count);
-    const double w = step_weight(offset, y, r.weight);
+    const double y = static_cast<double>(count_at(i));
+    const double w = step_weight(offset, y, weight_at(i));
     step_.account(step_x_.data(), offset, y, w, 1);
     *fit_weights_.push_back() = w;
   }
@@ -257,11 +259,13 @@ void SeriesModel::drop_oldest(std::size_t rows) {
     const std::size_t in_fit = std::min(rows, fit_weights_.size());
     for (std::size_t i = 0; i < in_fit; ++i) {
       const double offset = stored_row(i);
-      step_.account(step_x_.data(), offset, static_cast<double>(records_.row(i)->count), *fit_weights_.row(i), -1);
+      step_.account(step_x_.data(), offset, static_cast<double>(count_at(i)), *fit_weights_.row(i), -1);
     }
     fit_weights_.pop_front(in_fit);
   }
   records_.pop_front(rows);
+  if (!wide_.empty()) wide_.pop_front(rows);
+  if (!scales_.empty()) scales_.pop_front(rows);
   if (!settings_->model.covariates.empty()) covariate_values_.pop_front(rows);
   if (seasons_per_row_ > 0) {
     // A cache out of step (a restored model before its first learn) is refilled by learn().
@@ -274,7 +278,7 @@ void SeriesModel::trim_window(TimePoint latest) {
   const Window& w = settings_->model.window;
   std::size_t drop = 0;
   if (w.span) {
-    while (drop < records_.size() && records_.row(drop)->time <= latest - *w.span) ++drop;
+    while (drop < records_.size() && time_at(drop) <= latest - *w.span) ++drop;
   }
   if (w.records && records_.size() - drop > *w.records) drop = records_.size() - *w.records;
   if (drop > 0) drop_oldest(drop);
@@ -289,18 +293,18 @@ void SeriesModel::build_design(Eigen::MatrixXd& X, Eigen::VectorXd& y, Eigen::Ve
   weights.resize(static_cast<Eigen::Index>(n));
   const bool cached = season_cache_ok();
   for (std::size_t i = 0; i < n; ++i) {
-    const Stored& r = *records_.row(i);
+    const TimePoint time = time_at(i);
     const double* cov = covariate_values_.row(i);
     const auto row = static_cast<Eigen::Index>(i);
     if (!cached) {
-      offset(row) = row_for(r.time, r.exposure, cov, X.row(row));
+      offset(row) = row_for(time, exposure_at(i), cov, X.row(row));
     } else {
       // The same row as row_for, with the seasonal columns kept since learn().
-      const DesignInput in{r.time, origin_.value_or(r.time), r.exposure, cov};
+      const DesignInput in{time, origin_.value_or(time), exposure_at(i), cov};
       offset(row) = design_row(settings_->model, in, season_values_.row(i), X.row(row));
     }
-    y(row) = static_cast<double>(r.count);
-    weights(row) = r.weight;
+    y(row) = static_cast<double>(count_at(i));
+    weights(row) = weight_at(i);
   }
 }
 

@@ -77,7 +77,7 @@ class SeriesModel {
 
   std::optional<TimePoint> last_time() const;
   // Time of the oldest record still in the window. Precondition: history_size() > 0.
-  TimePoint first_time_in_window() const { return records_.row(0)->time; }
+  TimePoint first_time_in_window() const { return time_at(0); }
   std::size_t history_size() const { return records_.size(); }
   std::size_t min_history() const;  // effective: max(spec min_history, #coefficients + 2)
   const glm::FitResult& fit() const { return fit_; }
@@ -101,11 +101,17 @@ class SeriesModel {
   void load_state(StateReader& r);
 
  private:
+  // A record of the window in 8 bytes: its time as seconds after origin_
+  // and its count, each when it fits in 32 bits (see wide_); its exposure
+  // and prior weight are in scales_.
   struct Stored {
+    std::uint32_t since_origin;
+    std::uint32_t count;
+  };
+  // A record's time and count in full, for a window with one that does not fit Stored.
+  struct Wide {
     TimePoint time;
     std::int64_t count;
-    double exposure;
-    double weight;
   };
 
   void trim_window(TimePoint latest);
@@ -161,7 +167,33 @@ class SeriesModel {
   // history instead of a deque's dozen blocks, and a restore fills them with
   // one reservation each.
   Ring<Stored> records_;
+  // Time and count of records_ in full, one row each, or no rows while every
+  // record of the window fits Stored (seconds after origin_ and count below
+  // 2^32: all but a window spanning 136 years or a count of 4 billion).
+  // Started, stays and goes like scales_ (below).
+  Ring<Wide> wide_;
+  TimePoint time_at(std::size_t i) const {
+    return wide_.empty() ? *origin_ + Seconds{records_.row(i)->since_origin} : wide_.row(i)->time;
+  }
+  std::int64_t count_at(std::size_t i) const {
+    return wide_.empty() ? static_cast<std::int64_t>(records_.row(i)->count) : wide_.row(i)->count;
+  }
+  // Appends a record to records_ (and wide_ when needed; series_state.cc).
+  void push_record(TimePoint time, std::int64_t count);
+  bool fits_stored(TimePoint time, std::int64_t count) const;
+  std::uint64_t since_origin(TimePoint time) const;
   Ring<double> covariate_values_;  // covariates of records_, one row each (spec order)
+  // Exposure and prior weight of records_, one row {exposure, weight} each,
+  // or no rows at all while every record of the window has both exactly 1
+  // (bit for bit): most series never see another value, and their history
+  // then takes 8 bytes a record (Stored) instead of 32. The first record with
+  // another value starts the rows, {1, 1} for every record before it; the
+  // rows stay (as many as records_) until the window is empty.
+  Ring<double> scales_;
+  double exposure_at(std::size_t i) const { return scales_.empty() ? 1.0 : scales_.row(i)[0]; }
+  double weight_at(std::size_t i) const { return scales_.empty() ? 1.0 : scales_.row(i)[1]; }
+  // Appends the scales of the record just pushed on records_ (series_state.cc).
+  void push_scales(double exposure, double weight);
   // The seasonal design columns of records_ (season_columns), one row each,
   // so that a refit copies them instead of computing sin/cos for the whole
   // window. Derived from the times, not saved: a restored model (or one that

@@ -94,6 +94,47 @@ void load_fit(StateReader& r, glm::FitResult& f, int p) {
 
 }  // namespace
 
+// Seconds from origin_ to `time`, for a time not before it (unsigned, so
+// that no saved value, however damaged, can overflow).
+std::uint64_t SeriesModel::since_origin(TimePoint time) const {
+  return static_cast<std::uint64_t>(time.time_since_epoch().count()) -
+         static_cast<std::uint64_t>(origin_->time_since_epoch().count());
+}
+
+bool SeriesModel::fits_stored(TimePoint time, std::int64_t count) const {
+  if (!origin_ || time < *origin_ || count < 0 || count > std::int64_t{UINT32_MAX}) return false;
+  return since_origin(time) <= UINT32_MAX;
+}
+
+void SeriesModel::push_record(TimePoint time, std::int64_t count) {
+  const bool fits = fits_stored(time, count);
+  const std::uint64_t since = fits ? since_origin(time) : 0;
+  if (wide_.empty() && !fits) {
+    // Rows for the records before this one (all of which fit), as scales_ does.
+    wide_.reserve(std::max(records_.capacity(), records_.size() + 1));
+    for (std::size_t i = 0; i < records_.size(); ++i) {
+      const Stored& narrow = *records_.row(i);
+      *wide_.push_back() = Wide{*origin_ + Seconds{narrow.since_origin}, static_cast<std::int64_t>(narrow.count)};
+    }
+  }
+  *records_.push_back() =
+      fits ? Stored{static_cast<std::uint32_t>(since), static_cast<std::uint32_t>(count)} : Stored{0, 0};
+  if (!wide_.empty()) *wide_.push_back() = Wide{time, count};
+}
+
+void SeriesModel::push_scales(double exposure, double weight) {
+  if (scales_.empty()) {
+    if (is_one(exposure) && is_one(weight)) return;
+    // Rows for the records before this one, all {1, 1}, in a block as large
+    // as the window's so that the rows never move once the window is full.
+    scales_.reserve(std::max(records_.capacity(), records_.size()));
+    const double ones[2] = {1.0, 1.0};
+    for (std::size_t i = 0; i + 1 < records_.size(); ++i) scales_.push_back(ones);
+  }
+  const double row[2] = {exposure, weight};
+  scales_.push_back(row);
+}
+
 void SeriesModel::save_state(StateWriter& w) const {
   w.tag("model");
   w.boolean(origin_.has_value());
@@ -111,24 +152,25 @@ void SeriesModel::save_state(StateWriter& w) const {
   const std::size_t k = settings_->model.covariates.size();
   std::int64_t previous = 0;
   for (std::size_t i = 0; i < records_.size(); ++i) {
-    const Stored& s = *records_.row(i);
-    const std::int64_t time = s.time.time_since_epoch().count();
+    const std::int64_t time = time_at(i).time_since_epoch().count();
+    const std::int64_t count = count_at(i);
+    const double exposure = exposure_at(i), weight = weight_at(i);
     if (w.binary()) {
       // The history is most of a checkpoint: a record is a flags byte, its
       // time as the step from the record before, its count, and only those
       // of exposure and weight that are not exactly 1.
-      const bool unit_exposure = is_one(s.exposure), unit_weight = is_one(s.weight);
+      const bool unit_exposure = is_one(exposure), unit_weight = is_one(weight);
       w.u64((unit_exposure ? kUnitExposure : 0) | (unit_weight ? kUnitWeight : 0));
       w.i64(step(previous, time));
-      w.i64(s.count);
-      if (!unit_exposure) w.f64(s.exposure);
-      if (!unit_weight) w.f64(s.weight);
+      w.i64(count);
+      if (!unit_exposure) w.f64(exposure);
+      if (!unit_weight) w.f64(weight);
       previous = time;
     } else {
       w.i64(time);
-      w.i64(s.count);
-      w.f64(s.exposure);
-      w.f64(s.weight);
+      w.i64(count);
+      w.f64(exposure);
+      w.f64(weight);
     }
     const double* cov = covariate_values_.row(i);
     for (std::size_t c = 0; c < k; ++c) w.f64(cov[c]);
@@ -161,7 +203,9 @@ void SeriesModel::load_state(StateReader& r) {
   if (!r.failed() && n > kMaxSaved) r.fail("history too long");
   if (r.failed()) return;
   records_.clear();
+  wide_.clear();
   covariate_values_.clear();
+  scales_.clear();
   season_values_.clear();  // derived from the times; refilled by the next learn()
   // One block for the whole history. A record takes at least 3 bytes of the
   // state (binary: flags, time step, count; text: more), so a damaged count
@@ -183,27 +227,38 @@ void SeriesModel::load_state(StateReader& r) {
   if (k > 0) place(covariate_values_);
   std::int64_t previous = 0;
   for (std::uint64_t i = 0; i < n && !r.failed(); ++i) {
-    Stored& s = *records_.push_back();
+    std::int64_t time = 0, count = 0;
+    double exposure = 1.0, weight = 1.0;
     if (r.binary()) {
       const std::uint64_t flags = r.u64();
       if (flags > (kUnitExposure | kUnitWeight)) r.fail(fmt::format("history record flags {} unknown", flags));
       previous = advance(previous, r.i64());
-      s.time = TimePoint{Seconds{previous}};
-      s.count = r.i64();
-      s.exposure = (flags & kUnitExposure) ? 1.0 : r.f64();
-      s.weight = (flags & kUnitWeight) ? 1.0 : r.f64();
+      time = previous;
+      count = r.i64();
+      if (!(flags & kUnitExposure)) exposure = r.f64();
+      if (!(flags & kUnitWeight)) weight = r.f64();
     } else {
-      s.time = TimePoint{Seconds{r.i64()}};
-      s.count = r.i64();
-      s.exposure = r.f64();
-      s.weight = r.f64();
+      time = r.i64();
+      count = r.i64();
+      exposure = r.f64();
+      weight = r.f64();
+    }
+    // The first record that does not fit Stored starts wide_'s rows, the
+    // first with a scale other than 1 scales_': their blocks are placed like
+    // the others, for the whole saved history.
+    const TimePoint at{Seconds{time}};
+    if (wide_.empty() && !fits_stored(at, count)) place(wide_);
+    push_record(at, count);
+    if (!scales_.empty() || !(is_one(exposure) && is_one(weight))) {
+      if (scales_.empty()) place(scales_);
+      push_scales(exposure, weight);
     }
     if (k > 0) {
       double* cov = covariate_values_.push_back();
       for (std::uint64_t c = 0; c < k; ++c) cov[c] = r.f64();
     }
   }
-  if (!records_.empty()) newest_ = records_.row(records_.size() - 1)->time;
+  if (!records_.empty()) newest_ = time_at(records_.size() - 1);
   load_fit(r, fit_, p_);
 }
 
