@@ -36,7 +36,11 @@ constexpr double kDriftPerIteration = 0.5;
 template <int M>
 void cross_products_of(const double* w, const double* const* columns, Eigen::Index n, double* out) {
   using Packet = Eigen::internal::packet_traits<double>::type;
+  // (unpacket_traits of an SSE packet type drops its vector attribute: harmless, silenced.)
+#pragma GCC diagnostic push
+#pragma GCC diagnostic ignored "-Wignored-attributes"
   constexpr Eigen::Index kLanes = Eigen::internal::unpacket_traits<Packet>::size;
+#pragma GCC diagnostic pop
   Packet sums[M];
   for (int k = 0; k < M; ++k) sums[k] = Eigen::internal::pset1<Packet>(0.0);
   Eigen::Index i = 0;
@@ -224,7 +228,6 @@ bool SmallFit::fit(const Eigen::VectorXd& weights, const FitOptions& options,
   if (X_ == nullptr) return false;
   const Eigen::MatrixXd& X = *X_;
   const Eigen::VectorXd& y = *y_;
-  const Eigen::VectorXd& offset = *offset_;
   const auto p = static_cast<int>(X.cols());
   const Eigen::Index n = X.rows();
   const bool reuse = has_estimate_ && estimate_at(start);
