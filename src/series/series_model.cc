@@ -199,21 +199,10 @@ double SeriesModel::step_weight(double offset, double y, double prior) const {
   // As resistant_weights, against the published fit.
   const double eta = step_x_.dot(fit_.coefficients) + offset;
   const double mu = std::exp(eta);
-  if (!(mu > 1e-12) || !std::isfinite(mu)) return step_gamma_ * prior;
-  const double threshold = spec.reweight_threshold;
-  if (threshold >= 0 && !(y > mu)) return step_gamma_ * prior;
-  const double phi = spec.family == glm::Family::quasipoisson && std::isfinite(fit_.dispersion) && fit_.dispersion > 0
-                         ? fit_.dispersion
-                         : 1.0;
-  const bool nb = spec.family == glm::Family::negbin && std::isfinite(fit_.theta) && fit_.theta > 0;
-  const double variance = nb ? mu + mu * mu / fit_.theta : mu;
+  if (!std::isfinite(mu)) return step_gamma_ * prior;
   const double quadratic = step_x_.dot(fit_.covariance * step_x_.transpose());
-  const double h = std::clamp(prior * mu * mu / variance * quadratic / phi, 0.0, 0.99);
-  const double mu23 = std::cbrt(mu * mu);
-  const double anscombe = 1.5 * (std::cbrt(y * y) - mu23) / std::sqrt(std::sqrt(mu23));
-  const double index = nb ? 1 + mu / fit_.theta : phi;
-  const double z = anscombe / std::sqrt(index * (1 - h));
-  return step_gamma_ * (z > threshold ? prior / (z * z) : prior);
+  const double s = outlying_residual(fit_, y, mu, mu, prior, quadratic);  // log link: d mu / d eta = mu
+  return step_gamma_ * (s > 0 ? prior / (s * s) : prior);
 }
 
 void SeriesModel::step_forward() {
@@ -429,15 +418,39 @@ void SeriesModel::release_workspace() {
   weights_.resize(0);
 }
 
-Eigen::VectorXd SeriesModel::resistant_weights(const glm::FitResult& fit, double* gamma) const {
-  const Eigen::Index n = X_.rows();
+double SeriesModel::outlying_residual(const glm::FitResult& fit, double y, double mu, double d, double prior,
+                                     double quadratic) const {
+  if (!(mu > 1e-12)) return 0;
+  const double threshold = settings_->model.reweight_threshold;
+  // The Anscombe residual has the sign of y - mu: a record at or below its
+  // mean cannot pass a non-negative threshold.
+  if (threshold >= 0 && !(y > mu)) return 0;
   const glm::Family family = settings_->model.family;
-  const glm::Link link = settings_->model.link;
   const double phi = family == glm::Family::quasipoisson && std::isfinite(fit.dispersion) && fit.dispersion > 0
                          ? fit.dispersion
                          : 1.0;
   const bool nb = family == glm::Family::negbin && std::isfinite(fit.theta) && fit.theta > 0;
-  const double threshold = settings_->model.reweight_threshold;
+  const double variance = nb ? mu + mu * mu / fit.theta : mu;
+  // Leverage h = w x' (X'WX)^-1 x with Cov = phi (X'WX)^-1 for quasi-Poisson.
+  const double working = prior * d * d / variance;
+  const double h = std::clamp(working * quadratic / phi, 0.0, 0.99);
+  const double index = nb ? 1 + mu / fit.theta : phi;
+  const double spread = std::sqrt(index * (1 - h));
+  // Most records above their mean are far below the threshold: they skip
+  // the two cube roots (glibc's cbrt costs about three exps).
+  if (threshold >= 0 && anscombe_surely_within(y, mu, spread, threshold)) return 0;
+  // Poisson Anscombe residual; its variance is about the dispersion index
+  // (phi, or 1 + mu / theta for NB2). mu^(1/6) is the square root of the
+  // square root of mu^(2/3).
+  const double mu23 = std::cbrt(mu * mu);
+  const double anscombe = 1.5 * (std::cbrt(y * y) - mu23) / std::sqrt(std::sqrt(mu23));
+  const double s = anscombe / spread;
+  return s > threshold ? s : 0;
+}
+
+Eigen::VectorXd SeriesModel::resistant_weights(const glm::FitResult& fit, double* gamma) const {
+  const Eigen::Index n = X_.rows();
+  const glm::Link link = settings_->model.link;
   Eigen::VectorXd w = weights_;
   bool any = false;
   // The linear predictors and the quadratic forms x' Cov x of all records in
@@ -449,29 +462,10 @@ Eigen::VectorXd SeriesModel::resistant_weights(const glm::FitResult& fit, double
   for (Eigen::Index i = 0; i < n; ++i) {
     if (weights_(i) <= 0) continue;
     const double mu = glm::link_inv(link, eta(i));
-    if (!(mu > 1e-12)) continue;
-    const double y = y_(i);
-    // The Anscombe residual has the sign of y - mu: a record at or below its
-    // mean cannot pass a non-negative threshold.
-    if (threshold >= 0 && !(y > mu)) continue;
-    const double variance = nb ? mu + mu * mu / fit.theta : mu;
     // Under the log link d mu / d eta is exp(eta) again: reuse it.
     const double d = link == glm::Link::log ? mu : glm::mu_eta(link, eta(i));
-    // Leverage h = w x' (X'WX)^-1 x with Cov = phi (X'WX)^-1 for quasi-Poisson.
-    const double working = weights_(i) * d * d / variance;
-    const double h = std::clamp(working * quadratic(i) / phi, 0.0, 0.99);
-    const double index = nb ? 1 + mu / fit.theta : phi;
-    const double spread = std::sqrt(index * (1 - h));
-    // Most records above their mean are far below the threshold: they skip
-    // the two cube roots (glibc's cbrt costs about three exps).
-    if (threshold >= 0 && anscombe_surely_within(y, mu, spread, threshold)) continue;
-    // Poisson Anscombe residual; its variance is about the dispersion index
-    // (phi, or 1 + mu / theta for NB2). mu^(1/6) is the square root of the
-    // square root of mu^(2/3).
-    const double mu23 = std::cbrt(mu * mu);
-    const double anscombe = 1.5 * (std::cbrt(y * y) - mu23) / std::sqrt(std::sqrt(mu23));
-    const double s = anscombe / spread;
-    if (s > threshold) {
+    const double s = outlying_residual(fit, y_(i), mu, d, weights_(i), quadratic(i));
+    if (s > 0) {
       w(i) = weights_(i) / (s * s);
       any = true;
     }

@@ -149,6 +149,12 @@ class SeriesModel {
   // shrinkage of the weighted mean (series/resistant_dispersion.h). Reads the
   // design of the current refit.
   Correction correct_resistant_fit(glm::FitResult& result) const;
+  // One record's standardized Anscombe residual against `fit` when it
+  // exceeds model.reweight_threshold (the record is then down-weighted by
+  // its square), else 0. `d` is d mu / d eta at the record, `quadratic` its
+  // x' Cov x. Shared by resistant_weights and the steps' step_weight.
+  double outlying_residual(const glm::FitResult& fit, double y, double mu, double d, double prior,
+                           double quadratic) const;
   // `gamma`, when not null, receives the factor all weights were scaled by.
   Eigen::VectorXd resistant_weights(const glm::FitResult& fit, double* gamma = nullptr) const;
   double row_for(TimePoint time, double exposure, const double* covariates,
