@@ -7,6 +7,7 @@
 //                      [--cadences 2,4,7] [--doubt off|on|both] [--annual-harmonics H]
 //                      [--cadence-from N] [--doubt-factor F] [--feed-out FILE.csv]
 //                      [--verdicts-save FILE] [--verdicts-against FILE] [--steps off|on]
+//                      [--seed S] [--pvalues-out FILE.csv]
 //
 // Prints one row per method and screen setting: records, seconds,
 // records/s, judged, alerts, and how many records' verdicts (no alert, high,
@@ -34,6 +35,13 @@
 // file must come from the same --series, --days and --window).
 // --steps on sets model.step_between_refits in every row (a Newton step per
 // record between full refits; series/window_step.h).
+// --seed sets alert.seed (default 1), the seed of simulate's draws: two
+// seeds show how many verdicts Monte Carlo error alone moves.
+// --pvalues-out writes, after the first row's timed run, one CSV line per
+// record that some run could judge near alpha: the verdict and p-values the
+// run reported ("s": screened, floors) and the p-values by
+// quadrature of the same predictor (screen on, so a record it settles shows
+// floors). Collecting them costs a copy of each prediction inside the timed loop.
 #include <algorithm>
 #include <chrono>
 #include <cmath>
@@ -70,6 +78,8 @@ struct Args {
   std::string feed_out;
   std::string verdicts_save;
   std::string verdicts_against;
+  std::string pvalues_out;
+  std::uint64_t seed = 1;
   std::vector<std::size_t> cadences;
 };
 
@@ -120,6 +130,14 @@ Args parse_args(int argc, char** argv) {
     }
     if (k == "--verdicts-against") {
       a.verdicts_against = argv[i + 1];
+      continue;
+    }
+    if (k == "--pvalues-out") {
+      a.pvalues_out = argv[i + 1];
+      continue;
+    }
+    if (k == "--seed") {
+      a.seed = std::strtoull(argv[i + 1], nullptr, 10);
       continue;
     }
     if (k == "--cadences") {
@@ -212,6 +230,7 @@ SettingsTable bench_settings(const Args& a, bounds::Method method, bool screen, 
   t.defaults.alert.draws = a.draws;
   t.defaults.alert.alpha = 0.001;
   t.defaults.alert.screen = screen;
+  t.defaults.alert.seed = a.seed;
   return t;
 }
 
@@ -222,16 +241,19 @@ struct Row {
   double busy_seconds = 0;     // sharded: seconds the workers spent judging, summed
   double offered_seconds = 0;  // sharded: seconds in batches times workers
   std::uint64_t fits = 0;      // single: GLM fits done (a refit with the resistant second fit counts two)
+  std::vector<Prediction> predictions;  // with --pvalues-out: per record (not judged: eta_mean NaN)
 };
 
-Row run_single(const std::vector<Observation>& feed, const SettingsTable& settings) {
+Row run_single(const std::vector<Observation>& feed, const SettingsTable& settings, bool keep = false) {
   Engine engine(settings);
   Row row{0, {}, {}, 0, 0};
   row.verdicts.resize(feed.size());
+  if (keep) row.predictions.resize(feed.size(), Prediction{{std::nan(""), 0}, {}, {}});
   const auto t0 = std::chrono::steady_clock::now();
   for (std::size_t i = 0; i < feed.size(); ++i) {
     const IngestResult r = engine.ingest(feed[i]);
     row.verdicts[i] = !r.prediction ? 2 : !r.alert ? 0 : r.alert->side == AlertSide::high ? 1 : -1;
+    if (keep && r.prediction) row.predictions[i] = *r.prediction;
   }
   row.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
   row.counters = engine.counters();
@@ -255,6 +277,28 @@ std::optional<Row> load_verdicts(const std::string& path, std::size_t records) {
   std::fclose(f);
   if (!ok) return std::nullopt;
   return r;
+}
+
+// --pvalues-out: records whose reported p-values are not both above 0.05
+// (every record that alerts in one run and not in another is among them,
+// unless a verdict changed from afar), with quadrature's p-values beside.
+bool write_pvalues(const std::vector<Observation>& feed, const Row& r, double alpha, const std::string& path) {
+  std::FILE* f = std::fopen(path.c_str(), "w");
+  if (f == nullptr) return false;
+  std::fprintf(f, "record,verdict,p_high,p_low,kind,quad_p_high,quad_p_low,eta_mean,eta_variance,dispersion,count\n");
+  bounds::Options q;
+  q.method = bounds::Method::quadrature;
+  q.alpha = alpha;
+  q.screen = true;
+  for (std::size_t i = 0; i < r.predictions.size(); ++i) {
+    const Prediction& p = r.predictions[i];
+    if (std::isnan(p.predictor.eta_mean) || (p.bounds.p_high > 0.05 && p.bounds.p_low > 0.05)) continue;
+    const bounds::Bounds e = bounds::evaluate(p.predictor, p.noise, feed[i].count, q, nullptr);
+    std::fprintf(f, "%zu,%d,%.6g,%.6g,%s,%.6g,%.6g,%.17g,%.17g,%.17g,%lld\n", i, r.verdicts[i], p.bounds.p_high,
+                 p.bounds.p_low, p.bounds.screened ? "s" : "-", e.p_high, e.p_low, p.predictor.eta_mean,
+                 p.predictor.eta_variance, p.noise.dispersion, static_cast<long long>(feed[i].count));
+  }
+  return std::fclose(f) == 0;
 }
 
 std::size_t differing(const Row& a, const Row& b) {
@@ -337,8 +381,12 @@ int main(int argc, char** argv) {
     for (bool screen : screens) {
       const SettingsTable settings =
           bench_settings(a, method, screen, a.refit_every, a.refit_every > 1 && a.doubt == "on");
-      const Row one = run_single(feed, settings);
+      const Row one = run_single(feed, settings, !base && !a.pvalues_out.empty());
       if (!base) {
+        if (!one.predictions.empty() && !write_pvalues(feed, one, settings.defaults.alert.alpha, a.pvalues_out)) {
+          std::fprintf(stderr, "cannot write %s\n", a.pvalues_out.c_str());
+          return 1;
+        }
         base = one;
         if (!a.verdicts_save.empty() && !save_verdicts(one, a.verdicts_save)) {
           std::fprintf(stderr, "cannot write %s\n", a.verdicts_save.c_str());
