@@ -59,6 +59,20 @@ Bounds evaluate(const Predictor& predictor, const CountNoise& noise, std::int64_
       b.p_low = s.p_low_floor;
       return b;
     }
+    if (simulate && options.wanted_floor > 0 && draws_fall_below(options.draws, alpha, options.wanted_floor)) {
+      // Whatever the draws gave, a p-value would be at or below wanted_floor
+      // and the caller would discard them, refit and ask again (with a
+      // stream seeded per record, so the draws it then gets do not depend
+      // on whether any were made here).
+      Bounds b;
+      b.deferred = true;
+      b.expected = s.expected;
+      b.lower = 0;
+      b.upper = std::numeric_limits<std::int64_t>::max();
+      b.p_high = s.p_high_floor;
+      b.p_low = s.p_low_floor;
+      return b;
+    }
   }
   if (simulate) {
     // With the screen on, the draws stop once neither side can alert

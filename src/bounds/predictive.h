@@ -96,6 +96,10 @@ struct Options {
                               // exact tails are taken first (bounds/screen.h). SeriesModel::predict sets
                               // model.doubt_factor * alpha while refit_on_doubt may act, so a settled
                               // record's floors decide the doubt test as exact tails would. 0: alpha alone.
+                              // Simulate: setting it also says the caller refits and asks again when a
+                              // p-value comes back at or below it; when every result of the draws would
+                              // (simulate.h, draws_fall_below), a record the screen leaves is returned
+                              // `deferred` without drawing.
 };
 
 struct Bounds {
@@ -110,6 +114,14 @@ struct Bounds {
   // alpha; for simulate stopped early, on the full draws' p-values), and
   // expected is the quadrature mixture's mean (also for simulate). Ask again with screen off when the real values are needed.
   bool screened = false;
+  // Set only with simulate, the screen and a wanted_floor that every result
+  // of the draws would fall to (Options::wanted_floor): the screen did not
+  // settle the record and no draws were made, because whatever they gave,
+  // the caller would refit and ask again. Nothing is decided: lower = 0,
+  // upper = INT64_MAX, p_high and p_low are the screen's floors (lower bounds
+  // on the p-values of the predictive mixture, not of any draws) and expected
+  // the quadrature mixture's mean. Never judge such a result; ask again.
+  bool deferred = false;
 };
 
 // Evaluates the predictive distribution at `observed`.

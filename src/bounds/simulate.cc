@@ -31,23 +31,33 @@ std::int64_t select(std::vector<std::int64_t>& y, std::size_t index, std::size_t
   return y[index];
 }
 
+// All tail probabilities are count / n with this one expression, so
+// "count <= tail" and "count / n <= alpha" are the same test (division by a
+// fixed n is monotone): that is what makes the bounds and p-values agree exactly.
+double fraction(std::size_t count, std::size_t n) { return static_cast<double>(count) / static_cast<double>(n); }
+
+std::size_t draw_total(int draws) { return static_cast<std::size_t>(std::max(draws, 1)); }
+
 }  // namespace
+
+std::size_t simulate_tail(int draws, double alpha) {
+  const std::size_t n = draw_total(draws);
+  std::size_t tail = static_cast<std::size_t>(std::floor(alpha * static_cast<double>(n)));
+  while (tail + 1 < n && fraction(tail + 1, n) <= alpha) ++tail;
+  while (tail > 0 && fraction(tail, n) > alpha) --tail;
+  return tail;  // alpha <= 0.5 keeps tail <= n / 2 < n
+}
+
+bool draws_fall_below(int draws, double alpha, double wanted) {
+  return fraction(simulate_tail(draws, alpha) + 1, draw_total(draws)) <= wanted;
+}
 
 Bounds simulate_bounds(const Predictor& predictor, const CountNoise& noise, std::int64_t observed,
                        int draws, double alpha, Rng& rng, bool early_settle) {
-  const std::size_t n = static_cast<std::size_t>(std::max(draws, 1));
+  const std::size_t n = draw_total(draws);
   const double n_real = static_cast<double>(n);
   const double sd = std::sqrt(predictor.eta_variance);
-
-  // All tail probabilities are count / n with this one expression, and
-  // `tail` is the largest count whose fraction is <= alpha. Division by a
-  // fixed n is monotone, so "count <= tail" and "count / n <= alpha" are
-  // the same test: that is what makes the bounds and p-values agree exactly.
-  const auto fraction = [n_real](std::size_t count) { return static_cast<double>(count) / n_real; };
-  std::size_t tail = static_cast<std::size_t>(std::floor(alpha * n_real));
-  while (tail + 1 < n && fraction(tail + 1) <= alpha) ++tail;
-  while (tail > 0 && fraction(tail) > alpha) --tail;
-  // alpha <= 0.5 keeps tail <= n / 2 < n.
+  const std::size_t tail = simulate_tail(draws, alpha);
 
   std::vector<std::int64_t> y(n);
   std::size_t at_most = 0;   // #(y <= observed) among the draws so far
@@ -72,16 +82,16 @@ Bounds simulate_bounds(const Predictor& predictor, const CountNoise& noise, std:
       settled.screened = true;
       settled.lower = 0;
       settled.upper = std::numeric_limits<std::int64_t>::max();
-      settled.p_low = fraction(at_most);
-      settled.p_high = fraction(at_least);
+      settled.p_low = fraction(at_most, n);
+      settled.p_high = fraction(at_least, n);
       return settled;
     }
   }
 
   Bounds b;
   b.expected = sd == 0 ? (fixed.at_zero ? 0 : fixed.mu) : sum_mu / n_real;
-  b.p_low = fraction(at_most);
-  b.p_high = fraction(at_least);
+  b.p_low = fraction(at_most, n);
+  b.p_high = fraction(at_least, n);
 
   // lower = y_(tail): #(y <= l) >= tail + 1 exactly when l >= y_(tail).
   // upper = y_(n - 1 - tail): #(y > u) <= tail exactly when u >= that order statistic.

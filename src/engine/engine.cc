@@ -107,7 +107,8 @@ IngestResult Engine::ingest(const Observation& obs) {
       // so every record near alpha is judged by a fit of all earlier records.
       const bounds::Bounds& b = r.prediction->bounds;
       const double clear = s.model.doubt_factor * s.alert.alpha;
-      if (!(b.p_high > clear && b.p_low > clear)) {
+      // A deferred record (bounds::Bounds) is one the draws left for this.
+      if (b.deferred || !(b.p_high > clear && b.p_low > clear)) {
         model.refit();
         r.prediction = model.predict(obs, screen);
       }

@@ -335,6 +335,55 @@ TEST_CASE("simulated bounds are the order statistics of the draws", "[bounds]") 
   }
 }
 
+TEST_CASE("simulate with the screen defers, without drawing, a record every draw would leave in doubt", "[bounds][screen]") {
+  // wanted_floor 30 alpha (the benchmark's doubt factor) is above
+  // (tail + 1) / draws = 0.0011, so every result of the draws would have a
+  // p-value at or below it (tests/bounds/simulate_test.cc checks that claim).
+  const CountNoise noise{Family::quasipoisson, Link::log, 2.0, 0};
+  const Predictor predictor{std::log(20.0), 0.02};
+  Options o = simulation(1e-3, 10000);
+  o.screen = true;
+  // The first count above the mean that the screen leaves to the draws.
+  std::int64_t y = 20;
+  for (;; ++y) {
+    REQUIRE(y < 200);
+    Rng rng(5);
+    if (!evaluate(predictor, noise, y, o, &rng).screened) break;
+  }
+  INFO("observed " << y);
+  Options wanting = o;
+  wanting.wanted_floor = 30 * o.alpha;
+  Rng used(5), untouched(5);
+  const Bounds deferred = evaluate(predictor, noise, y, wanting, &used);
+  CHECK(deferred.deferred);
+  CHECK_FALSE(deferred.screened);
+  CHECK(deferred.lower == 0);
+  CHECK(deferred.upper == std::numeric_limits<std::int64_t>::max());
+  CHECK(used.next_u64() == untouched.next_u64());  // no draw was made
+  // Asked again without wanted_floor (as the engine does after its refit):
+  // the draws, unchanged by having been deferred once.
+  Rng again(5), reference(5);
+  const Bounds full = evaluate(predictor, noise, y, o, &again);
+  const Bounds direct = evaluate(predictor, noise, y, o, &reference);
+  CHECK_FALSE(full.deferred);
+  CHECK(full.p_high == direct.p_high);
+  CHECK(std::min(full.p_high, full.p_low) <= 30 * o.alpha);
+
+  // Not deferred: wanted_floor at alpha (an early stop's p-value can be above it),
+  // a record the screen settles, and quadrature.
+  Options at_alpha = o;
+  at_alpha.wanted_floor = o.alpha;
+  Rng r1(5), r2(5), r3(5);
+  CHECK_FALSE(evaluate(predictor, noise, y, at_alpha, &r1).deferred);
+  const Bounds inside = evaluate(predictor, noise, 20, wanting, &r2);
+  CHECK(inside.screened);
+  CHECK_FALSE(inside.deferred);
+  Options quad = quadrature(1e-3);
+  quad.screen = true;
+  quad.wanted_floor = 30 * o.alpha;
+  CHECK_FALSE(evaluate(predictor, noise, y, quad, &r3).deferred);
+}
+
 TEST_CASE("edge cases give defined answers", "[bounds]") {
   // Nothing to say: bounds that flag nothing.
   for (const Predictor p : {Predictor{std::nan(""), 0}, Predictor{1.0, INFINITY}, Predictor{-INFINITY, 0.1}}) {

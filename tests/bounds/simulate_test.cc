@@ -4,6 +4,7 @@
 // the property, so the full draws are the reference.
 #include "bounds/simulate.h"
 
+#include <algorithm>
 #include <cmath>
 #include <cstdint>
 #include <limits>
@@ -59,4 +60,36 @@ TEST_CASE("simulate: the early stop gives the full draws' verdict and floors bel
   CHECK(stopped > 50);   // the stop does happen
   CHECK(full_runs > 10);  // and records near or past a bound run to the end
   CHECK(flagged > 5);     // among them, records the draws flag
+}
+
+TEST_CASE("simulate: every early-stopped or full result has a p-value at (tail + 1) / draws or below", "[bounds][screen]") {
+  // draws_fall_below's claim, on results of the draws themselves: a record
+  // that stops early does so the moment its second count passes `tail`, one
+  // that runs to the end is flagged.
+  const double alpha = 0.001;
+  const int draws = 10000;
+  const std::size_t tail = simulate_tail(draws, alpha);
+  CHECK(tail == 10);  // 10 / 10000 <= 0.001 < 11 / 10000
+  const double reach = static_cast<double>(tail + 1) / draws;
+  CHECK(draws_fall_below(draws, alpha, reach));
+  CHECK_FALSE(draws_fall_below(draws, alpha, std::nextafter(reach, 0.0)));
+  CHECK(draws_fall_below(draws, alpha, 30 * alpha));
+  CHECK_FALSE(draws_fall_below(draws, alpha, alpha));
+  CHECK(simulate_tail(1, 0.5) == 0);
+  CHECK(draws_fall_below(1, 0.5, 1.0));  // one draw: a stop has both counts at 1 of 1
+
+  int results = 0;
+  std::uint64_t seed = 500;
+  const CountNoise noise{Family::quasipoisson, Link::log, 2.0, 0};
+  for (double mean : {3.0, 25.0}) {
+    const Predictor p{std::log(mean), 0.05};
+    for (std::int64_t y = 0; y <= static_cast<std::int64_t>(4 * mean + 20); y += 1 + static_cast<std::int64_t>(mean / 8)) {
+      Rng rng(++seed);
+      const Bounds b = simulate_bounds(p, noise, y, draws, alpha, rng, true);
+      INFO("mean " << mean << " observed " << y);
+      CHECK(std::min(b.p_high, b.p_low) <= reach);
+      ++results;
+    }
+  }
+  CHECK(results > 20);
 }
