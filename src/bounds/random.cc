@@ -6,28 +6,6 @@
 namespace tallyd::bounds {
 namespace {
 
-std::uint64_t rotl(std::uint64_t x, int k) { return (x << k) | (x >> (64 - k)); }
-
-// log(k!) without std::lgamma, whose accuracy differs between C libraries:
-// a table for small k, Stirling's series beyond (truncation error below
-// 1 / (1188 k^9) < 1e-16 for k >= 30).
-double log_factorial(std::int64_t k) {
-  constexpr int kTable = 30;
-  static const std::array<double, kTable> table = [] {
-    std::array<double, kTable> t{};
-    t[0] = 0;
-    for (int i = 1; i < kTable; ++i) t[i] = t[i - 1] + std::log(static_cast<double>(i));
-    return t;
-  }();
-  if (k < kTable) return table[static_cast<std::size_t>(k)];
-  const double n = static_cast<double>(k);
-  const double r = 1.0 / n;
-  const double r2 = r * r;
-  constexpr double kHalfLog2Pi = 0.91893853320467274178;  // log(2 pi) / 2
-  return n * std::log(n) - n + 0.5 * std::log(n) + kHalfLog2Pi +
-         r * (1.0 / 12 - r2 * (1.0 / 360 - r2 * (1.0 / 1260 - r2 / 1680)));
-}
-
 // Inversion by sequential search from 0; about mean + 1 iterations.
 std::int64_t poisson_inversion(double mean, double u) {
   double p = std::exp(-mean);
@@ -46,6 +24,23 @@ std::int64_t poisson_inversion(double mean, double u) {
 }
 
 }  // namespace
+
+double log_factorial(std::int64_t k) {
+  constexpr int kTable = 30;
+  static const std::array<double, kTable> table = [] {
+    std::array<double, kTable> t{};
+    t[0] = 0;
+    for (int i = 1; i < kTable; ++i) t[i] = t[i - 1] + std::log(static_cast<double>(i));
+    return t;
+  }();
+  if (k < kTable) return table[static_cast<std::size_t>(k)];
+  const double n = static_cast<double>(k);
+  const double r = 1.0 / n;
+  const double r2 = r * r;
+  constexpr double kHalfLog2Pi = 0.91893853320467274178;  // log(2 pi) / 2
+  return n * std::log(n) - n + 0.5 * std::log(n) + kHalfLog2Pi +
+         r * (1.0 / 12 - r2 * (1.0 / 360 - r2 * (1.0 / 1260 - r2 / 1680)));
+}
 
 std::uint64_t stable_hash(std::string_view bytes) {
   std::uint64_t h = 0xcbf29ce484222325ULL;
@@ -83,29 +78,6 @@ Rng Rng::for_record(std::uint64_t seed, std::string_view series, std::int64_t ep
   state = key ^ static_cast<std::uint64_t>(epoch_seconds);
   key = splitmix64_next(state);
   return Rng(key);
-}
-
-std::uint64_t Rng::next_u64() {
-  const std::uint64_t result = rotl(s_[1] * 5, 7) * 9;
-  const std::uint64_t t = s_[1] << 17;
-  s_[2] ^= s_[0];
-  s_[3] ^= s_[1];
-  s_[1] ^= s_[2];
-  s_[0] ^= s_[3];
-  s_[2] ^= t;
-  s_[3] = rotl(s_[3], 45);
-  return result;
-}
-
-double Rng::uniform() {
-  // k * 2^-53 is exact for every 53-bit k. Offsetting by half a step instead
-  // would not do: (2^53 - 1 + 0.5) * 2^-53 = 1 - 2^-54 is not a double and
-  // rounds to 1.
-  constexpr double kTwoToMinus53 = 1.0 / 9007199254740992.0;
-  for (;;) {
-    const std::uint64_t k = next_u64() >> 11;
-    if (k != 0) return static_cast<double>(k) * kTwoToMinus53;
-  }
 }
 
 double Rng::normal() {

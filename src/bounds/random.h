@@ -26,6 +26,11 @@ namespace tallyd::bounds {
 // 0x100000001b3): a stable hash, unlike std::hash.
 std::uint64_t stable_hash(std::string_view bytes);
 
+// log(k!) for k >= 0 without std::lgamma, whose accuracy differs between C
+// libraries: exact sums of logs for k < 30, Stirling's series beyond
+// (truncation error below 1 / (1188 k^9) < 1e-16 for k >= 30).
+double log_factorial(std::int64_t k);
+
 // One step of splitmix64 (Steele, Lea and Flood 2014; Vigna's splitmix64.c):
 // advances `state` by the golden-ratio increment and returns the mixed value.
 std::uint64_t splitmix64_next(std::uint64_t& state);
@@ -43,11 +48,11 @@ class Rng {
   // any one of them gives an unrelated stream.
   static Rng for_record(std::uint64_t seed, std::string_view series, std::int64_t epoch_seconds);
 
-  std::uint64_t next_u64();  // xoshiro256**
+  inline std::uint64_t next_u64();  // xoshiro256** (inline below: the samplers call it in their inner loops)
   // Uniform on {1, ..., 2^53 - 1} * 2^-53, so in (0, 1) and never exactly 0
   // or 1: the top 53 bits of next_u64, drawn again in the 2^-53 case that
   // they are all zero.
-  double uniform();
+  inline double uniform();
   // Standard normal by the Marsaglia polar method; the second value of each
   // accepted pair is kept and returned by the next call.
   double normal();
@@ -75,5 +80,29 @@ class Rng {
   bool has_spare_normal_ = false;
   double spare_normal_ = 0;
 };
+
+inline std::uint64_t Rng::next_u64() {
+  const auto rotl = [](std::uint64_t x, int k) { return (x << k) | (x >> (64 - k)); };
+  const std::uint64_t result = rotl(s_[1] * 5, 7) * 9;
+  const std::uint64_t t = s_[1] << 17;
+  s_[2] ^= s_[0];
+  s_[3] ^= s_[1];
+  s_[1] ^= s_[2];
+  s_[0] ^= s_[3];
+  s_[2] ^= t;
+  s_[3] = rotl(s_[3], 45);
+  return result;
+}
+
+inline double Rng::uniform() {
+  // k * 2^-53 is exact for every 53-bit k. Offsetting by half a step instead
+  // would not do: (2^53 - 1 + 0.5) * 2^-53 = 1 - 2^-54 is not a double and
+  // rounds to 1.
+  constexpr double kTwoToMinus53 = 1.0 / 9007199254740992.0;
+  for (;;) {
+    const std::uint64_t k = next_u64() >> 11;
+    if (k != 0) return static_cast<double>(k) * kTwoToMinus53;
+  }
+}
 
 }  // namespace tallyd::bounds

@@ -6,15 +6,10 @@
 #include <vector>
 
 #include "bounds/count_noise.h"
+#include "bounds/count_sampler.h"
 
 namespace tallyd::bounds {
 namespace {
-
-std::int64_t draw_count(const NoiseAt& d, Rng& rng) {
-  if (d.at_zero) return 0;
-  if (d.poisson) return rng.poisson(d.mu);
-  return rng.negbin(d.mu, d.size);
-}
 
 // The order statistic y_(index) (0-based) of `y`, leaving `y` partitioned
 // around it; `done` is an index already placed by an earlier selection,
@@ -63,15 +58,18 @@ Bounds simulate_bounds(const Predictor& predictor, const CountNoise& noise, std:
   std::size_t at_most = 0;   // #(y <= observed) among the draws so far
   std::size_t at_least = 0;  // #(y >= observed)
   double sum_mu = 0;
-  const NoiseAt fixed = sd == 0 ? noise_at(noise, mean_from_eta(noise.link, predictor.eta_mean)) : NoiseAt{};
+  const CountSampler sampler(noise);
+  // mean_from_eta clamps to kMaxMean; the noise puts a mean at or below
+  // kMinMean at zero, which counts 0 towards the mean of mu as well.
+  const double fixed_mu = mean_from_eta(noise.link, predictor.eta_mean);
   for (std::size_t i = 0; i < n; ++i) {
     std::int64_t v = 0;
     if (sd == 0) {
-      v = draw_count(fixed, rng);
+      v = sampler.draw(fixed_mu, rng);
     } else {
-      const NoiseAt d = noise_at(noise, mean_from_eta(noise.link, predictor.eta_mean + sd * rng.normal()));
-      v = draw_count(d, rng);
-      sum_mu += d.at_zero ? 0 : d.mu;
+      const double mu = mean_from_eta(noise.link, predictor.eta_mean + sd * ziggurat_normal(rng));
+      v = sampler.draw(mu, rng);
+      sum_mu += mu > kMinMean ? mu : 0;
     }
     y[i] = v;
     at_most += v <= observed;
@@ -89,7 +87,7 @@ Bounds simulate_bounds(const Predictor& predictor, const CountNoise& noise, std:
   }
 
   Bounds b;
-  b.expected = sd == 0 ? (fixed.at_zero ? 0 : fixed.mu) : sum_mu / n_real;
+  b.expected = sd == 0 ? (fixed_mu > kMinMean ? fixed_mu : 0) : sum_mu / n_real;
   b.p_low = fraction(at_most, n);
   b.p_high = fraction(at_least, n);
 

@@ -1,7 +1,8 @@
 // Internal to bounds: evaluate() by simulation.
 //
 // Draws `draws` pairs (eta*, y*): eta* = eta_mean + sqrt(eta_variance) z,
-// mu = g^{-1}(eta*), y* from the count noise at mu. Quantiles and tail
+// mu = g^{-1}(eta*), y* from the count noise at mu (z by the ziggurat
+// normal, y* by CountSampler: count_sampler.h). Quantiles and tail
 // probabilities are those of the empirical distribution of y*; expected is
 // the mean of the drawn mu (Rao-Blackwellised: less noisy than the mean of
 // y*). With eta_variance == 0 no normal is drawn and expected = mu exactly.

@@ -9,6 +9,8 @@
 #include <boost/math/distributions/poisson.hpp>
 #include <catch2/catch.hpp>
 
+#include "bounds/count_sampler.h"
+
 namespace tallyd::bounds {
 namespace {
 
@@ -310,14 +312,15 @@ TEST_CASE("simulation is reproducible from the record's stream", "[bounds]") {
 }
 
 TEST_CASE("simulated bounds are the order statistics of the draws", "[bounds]") {
-  // With eta_variance == 0 the draws are rng.poisson(mu), one per draw
-  // (simulate.h), so the same stream reproduces them here; sorting is the reference.
+  // With eta_variance == 0 the draws are poisson_variate(rng, mu), one per
+  // draw (simulate.h, count_sampler.h), so the same stream reproduces them
+  // here; sorting is the reference.
   const double mu = 6.5;
   const int n = 1000;
   for (const double alpha : {0.001, 0.01, 0.1, 0.5}) {
     Rng mirror(9);
     std::vector<std::int64_t> draws(n);
-    for (std::int64_t& y : draws) y = mirror.poisson(mu);
+    for (std::int64_t& y : draws) y = poisson_variate(mirror, mu);
     std::sort(draws.begin(), draws.end());
     // Largest c with c / n <= alpha; then lower = y_(c), upper = y_(n-1-c) (0-based).
     std::size_t c = 0;
