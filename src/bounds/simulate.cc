@@ -54,7 +54,10 @@ Bounds simulate_bounds(const Predictor& predictor, const CountNoise& noise, std:
   const double sd = std::sqrt(predictor.eta_variance);
   const std::size_t tail = simulate_tail(draws, alpha);
 
-  std::vector<std::int64_t> y(n);
+  // Filled as drawn; not zeroed first (a record that stops early never
+  // reads it, and one that runs to the end has written every entry).
+  std::vector<std::int64_t> y;
+  y.reserve(n);
   std::size_t at_most = 0;   // #(y <= observed) among the draws so far
   std::size_t at_least = 0;  // #(y >= observed)
   double sum_mu = 0;
@@ -71,7 +74,7 @@ Bounds simulate_bounds(const Predictor& predictor, const CountNoise& noise, std:
       v = sampler.draw(mu, rng);
       sum_mu += mu > kMinMean ? mu : 0;
     }
-    y[i] = v;
+    y.push_back(v);
     at_most += v <= observed;
     at_least += v >= observed;
     if (early_settle && at_most > tail && at_least > tail) {
