@@ -22,7 +22,8 @@
 //     NB2; ~25-40 us for quasi-Poisson (incomplete beta with a size per
 //     node). Below the mean Boost.Math 1.74 sums O(sqrt(mu)) terms, so large
 //     means cost more: ~40 us at mu = 1e3, ~200 us at 1e5.
-//   simulate: O(draws); 10,000 draws ~0.5 ms (Poisson) to ~1.2 ms (NB2).
+//   simulate: O(draws); 10,000 draws ~0.5 ms (Poisson) to ~1.2 ms (NB2) with
+//     Rng's own samplers, less with count_sampler.h's (docs/benchmarks.md).
 //
 // Accuracy of the quadrature over eta*. Each value of eta* carries a count
 // distribution whose width on the eta scale is the noise's (log link,

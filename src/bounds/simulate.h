@@ -17,6 +17,17 @@
 
 namespace tallyd::bounds {
 
+// The largest count of draws whose fraction of `draws` (at least 1 used)
+// is <= alpha: simulate_bounds flags a side whose count is at most this.
+std::size_t simulate_tail(int draws, double alpha);
+
+// Whether every result simulate_bounds(..., early_settle = true) can return
+// has a p-value at or below `wanted`: a run to the end flags a side (a
+// p-value <= alpha), and an early stop comes the moment the second count
+// passes `tail`, so one of its p-values is exactly (tail + 1) / draws.
+// True when that fraction is <= wanted. alpha in [1e-300, 0.5], as below.
+bool draws_fall_below(int draws, double alpha, double wanted);
+
 // Preconditions (checked by evaluate): eta_mean and eta_variance finite,
 // eta_variance >= 0, alpha in [1e-300, 0.5], 0 <= observed <= 2^53.
 //
@@ -28,17 +39,6 @@ namespace tallyd::bounds {
 // the same order. Such a result is marked screened: lower 0, upper
 // INT64_MAX, p_high and p_low the counts so far over `draws` (lower bounds
 // on the full draws' p-values), expected left 0 for the caller to set.
-// The largest count of draws whose fraction of `draws` (at least 1 used)
-// is <= alpha: simulate_bounds flags a side whose count is at most this.
-std::size_t simulate_tail(int draws, double alpha);
-
-// Whether every result simulate_bounds(..., early_settle = true) can return
-// has a p-value at or below `wanted`: a run to the end flags a side (a
-// p-value <= alpha), and an early stop comes the moment the second count
-// passes `tail`, so one of its p-values is exactly (tail + 1) / draws.
-// True when that fraction is <= wanted. Same preconditions on alpha.
-bool draws_fall_below(int draws, double alpha, double wanted);
-
 Bounds simulate_bounds(const Predictor& predictor, const CountNoise& noise, std::int64_t observed,
                        int draws, double alpha, Rng& rng, bool early_settle = false);
 
