@@ -141,14 +141,13 @@ void SmallFit::pass(const Column& beta, const Eigen::VectorXd& weights, bool reu
     const Eigen::Map<const Eigen::VectorXd> b(beta.data(), p);
     eta_next_.noalias() = X * b;
     eta_next_ += offset;
-    mu_next_.resize(n);
-    for (Eigen::Index i = 0; i < n; ++i) {
-      const double e = eta_next_(i);
-      const double m = std::exp(e);
-      // The validity test of glm/irls.cc's means_from.
-      if (!std::isfinite(e) || !(m > 0)) return;
-      mu_next_(i) = m;
-    }
+    // The validity test of glm/irls.cc's means_from (finite eta, mu > 0),
+    // with Eigen's packet exp (two or more records per instruction; within
+    // an ulp or two of std::exp). It keeps exp(eta) within about
+    // [1e-308, 1e308] where std::exp gives 0 or infinity: such means are
+    // outside [kSmallestMean, kLargestMean] and left to fit_glm below.
+    if (!eta_next_.allFinite()) return;
+    mu_next_ = eta_next_.array().exp();
   }
   double dev = 0;
   for (Eigen::Index i = 0; i < n; ++i) {
@@ -251,8 +250,9 @@ bool SmallFit::qr(double alias_tolerance, double* beta) {
     double* a = qr_a_.col(j).data();
     const double norm = own[static_cast<std::size_t>(j)];
     if (!(norm > alias_tolerance * largest)) return false;
-    double below = 0;  // squared norm of a[j + 1 ..]
-    for (Eigen::Index i = j + 1; i < n; ++i) below += a[i] * a[i];
+    const Eigen::Index m = n - j - 1;  // a[j + 1 ..], the reflector's tail
+    const Eigen::Map<const Eigen::VectorXd> tail(a + j + 1, m);
+    const double below = tail.squaredNorm();
     const double rest = std::sqrt(a[j] * a[j] + below);
     if (!(rest > alias_tolerance * norm)) return false;
     // v = a[j ..] - r e_1 with r = -sign(a[j]) |a[j ..]| (no cancellation);
@@ -261,11 +261,10 @@ bool SmallFit::qr(double alias_tolerance, double* beta) {
     const double v0 = a[j] - r;
     const double scale = 2 / (v0 * v0 + below);
     const auto reflect = [&](double* c) {
-      double dot = v0 * c[j];
-      for (Eigen::Index i = j + 1; i < n; ++i) dot += a[i] * c[i];
-      const double f = dot * scale;
+      Eigen::Map<Eigen::VectorXd> rest_of_c(c + j + 1, m);
+      const double f = (v0 * c[j] + tail.dot(rest_of_c)) * scale;
       c[j] -= f * v0;
-      for (Eigen::Index i = j + 1; i < n; ++i) c[i] -= f * a[i];
+      rest_of_c -= f * tail;
     };
     for (int c = j + 1; c < p; ++c) reflect(qr_a_.col(c).data());
     reflect(qr_b_.data());
