@@ -141,14 +141,13 @@ void SmallFit::pass(const Column& beta, const Eigen::VectorXd& weights, bool reu
     const Eigen::Map<const Eigen::VectorXd> b(beta.data(), p);
     eta_next_.noalias() = X * b;
     eta_next_ += offset;
-    mu_next_.resize(n);
-    for (Eigen::Index i = 0; i < n; ++i) {
-      const double e = eta_next_(i);
-      const double m = std::exp(e);
-      // The validity test of glm/irls.cc's means_from.
-      if (!std::isfinite(e) || !(m > 0)) return;
-      mu_next_(i) = m;
-    }
+    // The validity test of glm/irls.cc's means_from (finite eta, mu > 0),
+    // with Eigen's packet exp (two or more records per instruction; within
+    // an ulp or two of std::exp). It keeps exp(eta) within about
+    // [1e-308, 1e308] where std::exp gives 0 or infinity: such means are
+    // outside [kSmallestMean, kLargestMean] and left to fit_glm below.
+    if (!eta_next_.allFinite()) return;
+    mu_next_ = eta_next_.array().exp();
   }
   double dev = 0;
   for (Eigen::Index i = 0; i < n; ++i) {
@@ -223,6 +222,98 @@ void SmallFit::solve(const Sums& s, double* beta) const {
   }
 }
 
+bool SmallFit::qr(double alias_tolerance, double* beta) {
+  // glm/wls.cc's QR of diag(sqrt(w mu)) X, for a design it keeps whole:
+  // Householder reflections in column order, each column checked against
+  // the same two aliasing bounds first; a column failing them is left to
+  // fit_glm. The factor R is kept as L = R' (rows signed so that its
+  // diagonal is positive: L L' = X'WX), the solve is R b = Q' sqrt(w mu) z.
+  const Eigen::MatrixXd& X = *X_;
+  const Eigen::Index n = X.rows();
+  const auto p = static_cast<int>(X.cols());
+  qr_a_.resize(n, p);
+  qr_b_.resize(n);
+  for (Eigen::Index i = 0; i < n; ++i) {
+    const double root = std::sqrt(working_(i));
+    qr_b_(i) = root * response_(i);
+    for (int j = 0; j < p; ++j) qr_a_(i, j) = root * X(i, j);
+  }
+  Column own{};
+  double largest = 0;
+  for (int j = 0; j < p; ++j) {
+    own[static_cast<std::size_t>(j)] = qr_a_.col(j).norm();
+    largest = std::max(largest, own[static_cast<std::size_t>(j)]);
+  }
+  const auto at = [](int row, int col) { return static_cast<std::size_t>(row * kMaxColumns + col); };
+  Column sign{};
+  for (int j = 0; j < p; ++j) {
+    double* a = qr_a_.col(j).data();
+    const double norm = own[static_cast<std::size_t>(j)];
+    if (!(norm > alias_tolerance * largest)) return false;
+    const Eigen::Index m = n - j - 1;  // a[j + 1 ..], the reflector's tail
+    const Eigen::Map<const Eigen::VectorXd> tail(a + j + 1, m);
+    const double below = tail.squaredNorm();
+    const double rest = std::sqrt(a[j] * a[j] + below);
+    if (!(rest > alias_tolerance * norm)) return false;
+    // v = a[j ..] - r e_1 with r = -sign(a[j]) |a[j ..]| (no cancellation);
+    // H c = c - 2 v (v'c) / (v'v).
+    const double r = a[j] >= 0 ? -rest : rest;
+    const double v0 = a[j] - r;
+    const double scale = 2 / (v0 * v0 + below);
+    const auto reflect = [&](double* c) {
+      Eigen::Map<Eigen::VectorXd> rest_of_c(c + j + 1, m);
+      const double f = (v0 * c[j] + tail.dot(rest_of_c)) * scale;
+      c[j] -= f * v0;
+      rest_of_c -= f * tail;
+    };
+    for (int c = j + 1; c < p; ++c) reflect(qr_a_.col(c).data());
+    reflect(qr_b_.data());
+    a[j] = r;
+    sign[static_cast<std::size_t>(j)] = r > 0 ? 1.0 : -1.0;
+  }
+  for (int j = 0; j < p; ++j) {
+    for (int c = j; c < p; ++c) chol_[at(c, j)] = sign[static_cast<std::size_t>(j)] * qr_a_(j, c);
+  }
+  if (beta == nullptr) return true;
+  for (int j = p - 1; j >= 0; --j) {  // R b = Q'b, back substitution
+    double v = qr_b_(j);
+    for (int k = j + 1; k < p; ++k) v -= qr_a_(j, k) * beta[k];
+    beta[j] = v / qr_a_(j, j);
+  }
+  return true;
+}
+
+bool SmallFit::step(const Sums& s, double alias_tolerance, double* beta) {
+  if (factor(s)) {
+    solve(s, beta);
+    return true;
+  }
+  return qr(alias_tolerance, beta);
+}
+
+void SmallFit::covariance_from_factor(double dispersion, Eigen::MatrixXd& covariance) const {
+  const auto p = static_cast<int>(X_->cols());
+  // (X'WX)^{-1} = L^{-T} L^{-1}: invert L column by column, then multiply.
+  const auto at = [](int row, int col) { return static_cast<std::size_t>(row * kMaxColumns + col); };
+  Square inv{};  // L^{-1}, lower, row-major
+  for (int c = 0; c < p; ++c) {
+    for (int i = c; i < p; ++i) {
+      double v = i == c ? 1.0 : 0.0;
+      for (int k = c; k < i; ++k) v -= chol_[at(i, k)] * inv[at(k, c)];
+      inv[at(i, c)] = v / chol_[at(i, i)];
+    }
+  }
+  covariance.resize(p, p);
+  for (int a = 0; a < p; ++a) {
+    for (int b = a; b < p; ++b) {
+      double v = 0;
+      for (int k = b; k < p; ++k) v += inv[at(k, a)] * inv[at(k, b)];
+      covariance(a, b) = v * dispersion;
+      covariance(b, a) = v * dispersion;
+    }
+  }
+}
+
 bool SmallFit::fit(const Eigen::VectorXd& weights, const FitOptions& options,
                    const Eigen::VectorXd& start, FitResult& out) {
   if (X_ == nullptr) return false;
@@ -261,8 +352,7 @@ bool SmallFit::fit(const Eigen::VectorXd& weights, const FitOptions& options,
   Sums next;
   for (int iter = 1; iter <= options.max_iterations; ++iter) {
     iterations = iter;
-    if (!factor(current)) return false;  // the QR decides: fit_glm
-    solve(current, beta_new.data());
+    if (!step(current, options.alias_tolerance, beta_new.data())) return false;  // the QR aliased a column: fit_glm
     pass(beta_new, weights, false, next);
     if (next.odd) return false;
     const auto usable = [&] { return next.valid && std::isfinite(next.deviance); };
@@ -293,8 +383,10 @@ bool SmallFit::fit(const Eigen::VectorXd& weights, const FitOptions& options,
   }
   if (!converged) return false;
   // The information at the estimate: X'WX at the final means, which the
-  // last pass has summed.
-  if (!factor(current)) return false;
+  // last pass has summed (or, for a column failing the normal-equations
+  // bounds, the QR of the weighted design at those means, as fit_glm takes
+  // it then).
+  if (!factor(current) && !qr(options.alias_tolerance, nullptr)) return false;
   const int df = static_cast<int>(n) - p;
   const bool quasi = options.family == Family::quasipoisson;
   // glm/distribution.cc's pearson_chi2 at the final means.
@@ -306,25 +398,7 @@ bool SmallFit::fit(const Eigen::VectorXd& weights, const FitOptions& options,
   out.coefficients.resize(p);
   for (int j = 0; j < p; ++j) out.coefficients(j) = beta[static_cast<std::size_t>(j)];
   out.aliased.assign(static_cast<std::size_t>(p), false);
-  // (X'WX)^{-1} = L^{-T} L^{-1}: invert L column by column, then multiply.
-  const auto at = [](int row, int col) { return static_cast<std::size_t>(row * kMaxColumns + col); };
-  Square inv{};  // L^{-1}, lower, row-major
-  for (int c = 0; c < p; ++c) {
-    for (int i = c; i < p; ++i) {
-      double v = i == c ? 1.0 : 0.0;
-      for (int k = c; k < i; ++k) v -= chol_[at(i, k)] * inv[at(k, c)];
-      inv[at(i, c)] = v / chol_[at(i, i)];
-    }
-  }
-  out.covariance.resize(p, p);
-  for (int a = 0; a < p; ++a) {
-    for (int b = a; b < p; ++b) {
-      double v = 0;
-      for (int k = b; k < p; ++k) v += inv[at(k, a)] * inv[at(k, b)];
-      out.covariance(a, b) = v * dispersion;
-      out.covariance(b, a) = v * dispersion;
-    }
-  }
+  covariance_from_factor(dispersion, out.covariance);
   out.deviance = dev_old;
   out.null_deviance = kNaN;
   if (quasi) {

@@ -5,18 +5,22 @@
 // What it computes: exactly the steps of fit_glm (glm/irls.h) for Poisson and
 // quasi-Poisson under the log link from a warm start, with the same
 // convergence rule |dev - dev_old| / (|dev| + 0.1) < tolerance, the same
-// step-halving and the same normal-equations bounds (glm/wls.h). Each pass
+// step-halving and the same choice of solver (glm/wls.h): the normal
+// equations when every column passes their bounds, else the Householder QR
+// of the weighted design (young windows, where the trend and a long
+// season's harmonics are nearly collinear over a few weeks). Each pass
 // computes, for one coefficient vector, the linear predictors, the means,
 // the deviance and X'WX, X'Wz at those means: if the step is accepted they
 // are the next step's system, and at convergence X'WX is the information
-// the covariance is taken from. The results equal fit_glm's up to rounding
-// (sums taken in another order; tests/glm/small_fit_test.cc asks 1e-10 of
-// the largest coefficient).
+// the covariance is taken from (or its QR, when a column fails the
+// bounds). The results equal fit_glm's up to rounding (sums taken in
+// another order; tests/glm/small_fit_test.cc asks 1e-10 of the largest
+// coefficient).
 //
 // Whenever fit_glm would do anything else (a start giving invalid means,
-// a column failing the normal-equations bounds, so that the QR would decide
-// aliasing, step-halving that stalls, a mean running off to 0, no residual
-// degrees of freedom, all counts zero, a record left out...) fit() returns
+// a column that the QR aliases, step-halving that stalls, a mean running off
+// to 0, no residual degrees of freedom, all counts zero, a record left
+// out...) fit() returns
 // false and the caller runs fit_glm on the same data: the fast path never
 // decides a hard case by itself.
 //
@@ -87,6 +91,17 @@ class SmallFit {
   bool factor(const Sums& s);
   // Solves X'WX b = X'Wz with chol_.
   void solve(const Sums& s, double* beta) const;
+  // The QR (as glm/wls.h's) of the weighted design at the last pass's means:
+  // its R' into chol_ and, when beta is not null, the least-squares
+  // coefficients into beta; false when it would alias a column.
+  bool qr(double alias_tolerance, double* beta);
+  // The next IRLS coefficients from the sums of an accepted pass (the last
+  // pass made): by the normal equations when every column passes their
+  // bounds, else by the QR as fit_glm's step; false when the QR aliases a
+  // column.
+  bool step(const Sums& s, double alias_tolerance, double* beta);
+  // (X'WX)^{-1} * dispersion from chol_ (L L' = X'WX).
+  void covariance_from_factor(double dispersion, Eigen::MatrixXd& covariance) const;
 
   const Eigen::MatrixXd* X_ = nullptr;
   const Eigen::VectorXd* y_ = nullptr;
@@ -96,6 +111,8 @@ class SmallFit {
   Eigen::VectorXd eta_, mu_, eta_next_, mu_next_;
   Eigen::VectorXd working_, response_;  // w mu and the working response of a pass
   Square chol_{};
+  Eigen::MatrixXd qr_a_;  // young windows: the weighted design, then its reflections
+  Eigen::VectorXd qr_b_;  // and the weighted working response, then Q' of it
   bool has_estimate_ = false;
   Column estimate_{};
 };

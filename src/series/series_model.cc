@@ -368,19 +368,19 @@ void SeriesModel::refit() {
     bool corrected = false;
     for (std::size_t round = 0; round < settings_->model.reweight_rounds; ++round) {
       double round_gamma = 1;
-      Eigen::VectorXd resistant = resistant_weights(result, &round_gamma);
+      Eigen::VectorXd resistant = resistant_weights(result, small, &round_gamma);
       if (resistant.size() == 0) break;
       glm::FitResult next =
           glm::fit_fast_or_general(small, X_, y_, offset_, resistant, options, &result.coefficients);
       ++fits_done_;
       if (next.status != glm::FitStatus::ok) break;
       result = std::move(next);
-      correction = correct_resistant_fit(result);
+      correction = correct_resistant_fit(result, small);
       corrected = true;
       if (steps) fit_weights = std::move(resistant);
       gamma = round_gamma;
     }
-    if (!corrected) correction = correct_resistant_fit(result);
+    if (!corrected) correction = correct_resistant_fit(result, small);
   }
   const bool converged = result.status == glm::FitStatus::ok;
   if (converged || (result.status == glm::FitStatus::not_converged && !has_fit_)) {
@@ -393,7 +393,8 @@ void SeriesModel::refit() {
   release_workspace();
 }
 
-SeriesModel::Correction SeriesModel::correct_resistant_fit(glm::FitResult& result) const {
+SeriesModel::Correction SeriesModel::correct_resistant_fit(glm::FitResult& result,
+                                                           const glm::SmallFit& small) const {
   // The weighted Pearson statistic of the resistant fit lacks the largest
   // residuals, so its quasi-Poisson phi runs low even with no outbreak;
   // divide by the expected shrinkage (series/resistant_dispersion.h). The
@@ -410,10 +411,16 @@ SeriesModel::Correction SeriesModel::correct_resistant_fit(glm::FitResult& resul
   if (!quasi && !mean_fix) return applied;
   // At the window's average fitted mean, and at the corrected phi (one
   // step: the factor moves slowly with phi).
-  const Eigen::VectorXd eta = X_ * result.coefficients + offset_;
   double mean_sum = 0;
-  for (Eigen::Index i = 0; i < eta.size(); ++i) mean_sum += glm::link_inv(spec.link, eta(i));
-  const double mean = mean_sum / static_cast<double>(eta.size());
+  if (spec.link == glm::Link::log && small.estimate_at(result.coefficients)) {
+    // exp(eta) at these coefficients, summed in the same order as below.
+    const Eigen::VectorXd& mu = small.mu();
+    for (Eigen::Index i = 0; i < mu.size(); ++i) mean_sum += mu(i);
+  } else {
+    const Eigen::VectorXd eta = X_ * result.coefficients + offset_;
+    for (Eigen::Index i = 0; i < eta.size(); ++i) mean_sum += glm::link_inv(spec.link, eta(i));
+  }
+  const double mean = mean_sum / static_cast<double>(X_.rows());
   const double threshold = spec.reweight_threshold;
   double index = 1;  // the noise's dispersion index at the mean
   if (quasi) index = result.dispersion / normal_reweighted_dispersion_factor(threshold);
@@ -472,23 +479,38 @@ double SeriesModel::outlying_residual(const glm::FitResult& fit, double y, doubl
   return s > threshold ? s : 0;
 }
 
-Eigen::VectorXd SeriesModel::resistant_weights(const glm::FitResult& fit, double* gamma) const {
+Eigen::VectorXd SeriesModel::resistant_weights(const glm::FitResult& fit, const glm::SmallFit& small,
+                                               double* gamma) const {
   const Eigen::Index n = X_.rows();
   const glm::Link link = settings_->model.link;
+  const double threshold = settings_->model.reweight_threshold;
   Eigen::VectorXd w = weights_;
   bool any = false;
-  // The linear predictors and the quadratic forms x' Cov x of all records in
-  // two matrix products, rather than a small product per record.
-  Eigen::VectorXd eta = X_ * fit.coefficients;
-  eta += offset_;
-  const Eigen::MatrixXd xc = X_ * fit.covariance;
-  const Eigen::VectorXd quadratic = xc.cwiseProduct(X_).rowwise().sum();
+  // The linear predictors and means of all records: the fast fit's when it
+  // ended at these coefficients (exp(eta) there too), else one product.
+  const bool known = link == glm::Link::log && small.estimate_at(fit.coefficients);
+  Eigen::VectorXd eta;
+  if (!known) {
+    eta.noalias() = X_ * fit.coefficients;
+    eta += offset_;
+  }
+  const Eigen::MatrixXd& cov = fit.covariance;
   for (Eigen::Index i = 0; i < n; ++i) {
     if (weights_(i) <= 0) continue;
-    const double mu = glm::link_inv(link, eta(i));
+    const double eta_i = known ? small.eta()(i) : eta(i);
+    const double mu = known ? small.mu()(i) : glm::link_inv(link, eta_i);
+    // A record at or below its mean is not outlying for a threshold >= 0
+    // (outlying_residual): it needs no quadratic form x' Cov x.
+    if (threshold >= 0 && !(y_(i) > mu)) continue;
     // Under the log link d mu / d eta is exp(eta) again: reuse it.
-    const double d = link == glm::Link::log ? mu : glm::mu_eta(link, eta(i));
-    const double s = outlying_residual(fit, y_(i), mu, d, weights_(i), quadratic(i));
+    const double d = link == glm::Link::log ? mu : glm::mu_eta(link, eta_i);
+    double quadratic = 0;  // sum_j x_j (x' Cov)_j
+    for (Eigen::Index j = 0; j < X_.cols(); ++j) {
+      double column = 0;
+      for (Eigen::Index k = 0; k < X_.cols(); ++k) column += X_(i, k) * cov(k, j);
+      quadratic += column * X_(i, j);
+    }
+    const double s = outlying_residual(fit, y_(i), mu, d, weights_(i), quadratic);
     if (s > 0) {
       w(i) = weights_(i) / (s * s);
       any = true;

@@ -26,6 +26,9 @@
 #include "series/window_step.h"
 
 namespace tallyd {
+namespace glm {
+class SmallFit;
+}
 
 class BulkMemory;
 class StateWriter;
@@ -153,8 +156,9 @@ class SeriesModel {
   // expected shrinkage of the weighted Pearson statistic, and with
   // model.reweight_mean_correction (log link) its mean by the expected
   // shrinkage of the weighted mean (series/resistant_dispersion.h). Reads the
-  // design of the current refit.
-  Correction correct_resistant_fit(glm::FitResult& result) const;
+  // design of the current refit, and the linear predictors and means at
+  // result's coefficients from `small` when it holds them (estimate_at).
+  Correction correct_resistant_fit(glm::FitResult& result, const glm::SmallFit& small) const;
   // One record's standardized Anscombe residual against `fit` when it
   // exceeds model.reweight_threshold (the record is then down-weighted by
   // its square), else 0. `d` is d mu / d eta at the record, `quadratic` its
@@ -162,7 +166,10 @@ class SeriesModel {
   double outlying_residual(const glm::FitResult& fit, double y, double mu, double d, double prior,
                            double quadratic) const;
   // `gamma`, when not null, receives the factor all weights were scaled by.
-  Eigen::VectorXd resistant_weights(const glm::FitResult& fit, double* gamma = nullptr) const;
+  // The linear predictors and means at fit's coefficients are read from
+  // `small` when it holds them (the same values bit for bit).
+  Eigen::VectorXd resistant_weights(const glm::FitResult& fit, const glm::SmallFit& small,
+                                    double* gamma = nullptr) const;
   double row_for(TimePoint time, double exposure, const double* covariates,
                  RowRef row) const;
 

@@ -6,6 +6,7 @@
 #include "glm/fit.h"
 
 #include "glm/small_fit.h"
+#include "glm/wls.h"
 
 #include <cmath>
 #include <fstream>
@@ -215,6 +216,41 @@ TEST_CASE("the small-p fast path matches R on Dobson's trial counts", "[R][glm]"
   CHECK(close(fit.deviance, c.summary.at("deviance"), kTightRel));
   CHECK(close(fit.aic, c.summary.at("aic"), kTightRel));
   CHECK(close(fit.log_likelihood, c.summary.at("log_likelihood"), kTightRel));
+  CHECK(fit.df_residual == static_cast<int>(c.summary.at("df_residual")));
+}
+
+// A young series' window (the first 40 days of R's datasets::airquality,
+// Chambers et al. 1983, daily maximum temperature; trend, annual and weekly
+// pairs as series/design.h builds them), where the columns fail the normal
+// equations' bounds and the fast path steps by the QR; reference: R
+// glm(quasipoisson), tests/reference/make_reference.R case (g).
+TEST_CASE("the small-p fast path matches R on a young window that needs the QR", "[R][glm]") {
+  const RCase c = load_case("young_window_quasipoisson");
+  tallyd::glm::WeightedLeastSquares wls;
+  const Eigen::Index n = c.X.rows();
+  REQUIRE(wls.solve(c.X, Eigen::VectorXd::Zero(n), Eigen::VectorXd::Ones(n), 1e-9) == 6);
+  REQUIRE_FALSE(wls.used_normal_equations());
+  FitOptions options;
+  options.family = Family::quasipoisson;
+  options.link = Link::log;
+  options.tolerance = kRTolerance;
+  options.null_deviance = false;
+  tallyd::glm::SmallFit small;
+  small.use(c.X, c.y, c.offset);
+  FitResult fit;
+  // A warm start as a refit has one: the log of the mean count, the rest 0.
+  Eigen::VectorXd start = Eigen::VectorXd::Zero(c.X.cols());
+  start(0) = std::log(c.y.mean());
+  REQUIRE(small.fit(c.weight, options, start, fit));
+  REQUIRE(fit.status == FitStatus::ok);
+  for (Eigen::Index j = 0; j < c.X.cols(); ++j) {
+    INFO("term " << c.terms[static_cast<std::size_t>(j)] << ": ours " << fit.coefficients(j)
+                 << " R " << c.estimate(j));
+    CHECK(close(fit.coefficients(j), c.estimate(j), kTightRel));
+    CHECK(close(std::sqrt(fit.covariance(j, j)), c.std_error(j), kLooseRel));
+  }
+  CHECK(close(fit.deviance, c.summary.at("deviance"), kTightRel));
+  CHECK(close(fit.dispersion, c.summary.at("dispersion"), kLooseRel));
   CHECK(fit.df_residual == static_cast<int>(c.summary.at("df_residual")));
 }
 

@@ -6,6 +6,8 @@
 
 #include <catch2/catch.hpp>
 
+#include "glm/wls.h"
+
 // The fast path is checked against fit_glm, which tests/glm/reference_test.cc
 // checks against R's glm and MASS's glm.nb; tests/glm/reference_test.cc also
 // runs the fast path itself on Dobson's counts against R.
@@ -147,6 +149,54 @@ TEST_CASE("the small-p fit agrees with fit_glm from warm starts", "[glm]") {
               CHECK(close(small.mu()(i), std::exp(eta), 1e-11));
             }
           }
+        }
+      }
+    }
+  }
+}
+
+// A young series' window as series/design.h builds it a few weeks after its
+// first record: intercept, trend in years since that record, the annual
+// pair and the weekly pair. Over 30-60 days the annual pair is nearly a
+// line and a parabola in time, so the columns fail the normal equations'
+// bounds and fit_glm steps by the QR (glm/wls.h); the fast path must too.
+TEST_CASE("the small-p fit agrees with fit_glm on young windows that need the QR", "[glm]") {
+  for (const int n : {30, 45, 59}) {
+    for (const double first_day : {10.0, 200.0}) {
+      Eigen::MatrixXd X(n, 6);
+      for (int i = 0; i < n; ++i) {
+        const double day = first_day + i;
+        const double year = 2 * M_PI * day / 365.25, week = 2 * M_PI * day / 7.0;
+        X.row(i) << 1.0, i / 365.25, std::sin(year), std::cos(year), std::sin(week), std::cos(week);
+      }
+      // The design itself needs the QR: the normal equations decline it.
+      tallyd::glm::WeightedLeastSquares wls;
+      REQUIRE(wls.solve(X, Eigen::VectorXd::Zero(n), Eigen::VectorXd::Ones(n), 1e-9) == 6);
+      REQUIRE_FALSE(wls.used_normal_equations());
+      for (const Family family : {Family::poisson, Family::quasipoisson}) {
+        for (const bool spikes : {false, true}) {
+          Eigen::VectorXd y, offset;
+          counts(X, 1.5, family == Family::quasipoisson ? 0.4 : 0.0, spikes, y, offset);
+          const FitOptions o = options_for(family);
+          Eigen::VectorXd w = Eigen::VectorXd::Ones(n);
+          Eigen::VectorXd start = Eigen::VectorXd::Zero(6);
+          start(0) = 1.6;
+          INFO("n " << n << " first day " << first_day << " family " << to_string(family)
+                    << " spikes " << spikes);
+          const FitResult ref = tallyd::glm::fit_glm(X, y, offset, w, o, &start, true);
+          SmallFit small;
+          small.use(X, y, offset);
+          FitResult fast;
+          REQUIRE(small.fit(w, o, start, fast));
+          check_same(fast, ref);
+          // The resistant second fit's pattern on the same window.
+          w(n / 3) = 0.2;
+          w *= static_cast<double>(n) / w.sum();
+          const Eigen::VectorXd from = fast.coefficients;
+          const FitResult ref2 = tallyd::glm::fit_glm(X, y, offset, w, o, &from, true);
+          FitResult fast2;
+          REQUIRE(small.fit(w, o, from, fast2));
+          check_same(fast2, ref2);
         }
       }
     }

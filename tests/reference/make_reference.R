@@ -138,3 +138,20 @@ record_runaway <- function(name, formula, data) {
 }
 record_runaway("ships_negbin", ships_formula, ships1)
 record_runaway("insurance_negbin", insurance_formula, Insurance)
+
+# (g) A young series' window: the first 40 days of R's airquality (New York,
+# May 1 - June 9, 1973; Chambers et al. 1983, datasets::airquality), the
+# daily maximum temperature in whole degrees F as the response of a
+# quasi-Poisson log-linear model with a trend in years and the annual and
+# weekly harmonic pairs, the columns series/design.h builds for a series.
+# Over 40 days the annual pair is nearly a line and a parabola in time, so
+# the fit needs the QR rather than the normal equations (glm/wls.h); the
+# refit's fast path (glm/small_fit.h) takes the same QR steps.
+aq_day <- 0:39
+aq_doy <- 120 + aq_day  # days since 1 January 1973
+young <- data.frame(temp = airquality$Temp[1:40], trend = aq_day / 365.25,
+                    year_sin = sin(2 * pi * aq_doy / 365.25), year_cos = cos(2 * pi * aq_doy / 365.25),
+                    week_sin = sin(2 * pi * aq_day / 7), week_cos = cos(2 * pi * aq_day / 7))
+export_glm("young_window_quasipoisson",
+           glm(temp ~ trend + year_sin + year_cos + week_sin + week_cos, family = quasipoisson,
+               data = young, control = tight))
