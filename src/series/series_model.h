@@ -136,8 +136,11 @@ class SeriesModel {
   };
   bool steps_on() const;
   // After a full refit of the current design (X_, y_, offset_): the sums at
-  // its coefficients over the records it used, with the weights it used.
-  void start_steps(const Eigen::VectorXd& fit_weights, const Correction& correction, double gamma);
+  // its coefficients over the records it used, with the weights it used;
+  // `small` is the refit's fast path, whose means are used when it ended at
+  // the steps' beta*.
+  void start_steps(const Eigen::VectorXd& fit_weights, const Correction& correction, double gamma,
+                   const glm::SmallFit& small);
   // The design row (into step_x_) and offset of the window's record i.
   double stored_row(std::size_t i);
   // The prior weight a record enters the step sums with: the resistant

@@ -33,8 +33,13 @@ void WindowStep::account(const double* x, double offset, double y, double weight
   const Eigen::Index p = beta_.size();
   double eta = offset;
   for (Eigen::Index j = 0; j < p; ++j) eta += x[j] * beta_(j);
-  const double mu = std::exp(eta);
+  account_mean(x, std::exp(eta), y, weight, sign);
+}
+
+void WindowStep::account_mean(const double* x, double mu, double y, double weight, double sign) {
+  if (!(weight > 0)) return;
   if (!(mu > 0) || !std::isfinite(mu)) return;
+  const Eigen::Index p = beta_.size();
   // V(mu): mu, or mu + mu^2 / theta for NB2 (Poisson when theta is not a
   // positive finite number). Under the log link d mu / d eta = mu.
   const bool nb = family_ == glm::Family::negbin && std::isfinite(theta_) && theta_ > 0;

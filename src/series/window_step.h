@@ -61,6 +61,9 @@ class WindowStep {
   // elements (the design row without the offset); a record with weight <= 0
   // or a non-finite mean at beta* adds nothing. Precondition: active().
   void account(const double* x, double offset, double y, double weight, double sign);
+  // The same, with the record's mean at beta* given (exp(x' beta* + offset),
+  // e.g. from the fit that produced beta*) instead of computed.
+  void account_mean(const double* x, double mu, double y, double weight, double sign);
 
   // Records whose terms are in the sums (weight > 0).
   std::size_t rows() const { return rows_; }
