@@ -57,6 +57,20 @@ QuadratureRule choose_rule(const Predictor& predictor, const CountNoise& noise, 
   return r;
 }
 
+std::optional<double> lognormal_expected(const Predictor& predictor, const CountNoise& noise,
+                                         const QuadratureRule& rule) {
+  if (noise.link != glm::Link::log || rule.grid) return std::nullopt;
+  // log(kMinMean) = -690.77552789821..., log(kMaxMean) = 20.7232658369...,
+  // each moved inwards by more than the rounding of a node's eta.
+  constexpr double kLowestInside = -690.775527;
+  constexpr double kHighestInside = 20.7232658;
+  const double reach = predictor.eta_variance == 0
+                           ? 0.0
+                           : std::sqrt(2 * predictor.eta_variance) * gauss_hermite(rule.hermite_nodes).nodes.back();
+  if (!(predictor.eta_mean - reach > kLowestInside && predictor.eta_mean + reach < kHighestInside)) return std::nullopt;
+  return std::exp(predictor.eta_mean + 0.5 * predictor.eta_variance);
+}
+
 void build_mixture(const Predictor& predictor, const CountNoise& noise, const QuadratureRule& rule, Mixture& m) {
   const std::size_t capacity = static_cast<std::size_t>(rule.grid ? rule.grid_nodes : rule.hermite_nodes);
   for (PerNode* v : {&m.w, &m.mu, &m.size, &m.q, &m.inv_mu}) v->resize(capacity);
@@ -78,6 +92,7 @@ void build_mixture(const Predictor& predictor, const CountNoise& noise, const Qu
     m.expected += weight * d.mu;
   };
   for_each_node(predictor, rule, add);
+  if (const std::optional<double> e = lognormal_expected(predictor, noise, rule)) m.expected = *e;
 }
 
 // P(Y = k) of the mixture, from the component pmfs at k.

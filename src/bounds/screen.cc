@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <optional>
 
 #include "bounds/count_noise.h"
 #include "bounds/mixture.h"
@@ -24,9 +25,9 @@ namespace {
 constexpr double kBandEdges[kScreenBands - 1] = {1.0, 2.0};
 
 // One walk over the rule's nodes: what the screen needs of the mixture,
-// summed in the order build_mixture sums it (so `expected`, W_up and W_low
-// are bit for bit those of the built mixture: the components pooled at zero
-// have the smallest eta, so they come first in both sums).
+// summed in the order build_mixture sums it (so `expected` is bit for bit
+// the built mixture's: the components pooled at zero have the smallest eta,
+// so they come first in both sums; or both take lognormal_expected).
 struct Walk {
   double expected = 0;
   double w_up = 0;   // components with mu >= mu_c (all, when mu_c is at zero)
@@ -47,14 +48,27 @@ struct Walk {
 Walk walk_nodes(const Predictor& predictor, const CountNoise& noise, const QuadratureRule& rule, const NoiseAt& centre) {
   Walk w;
   const double sd = std::sqrt(predictor.eta_variance);
+  // The log link with no node's mean clamped: `expected` in closed form, and
+  // a node's side of mu_c read from its eta, no exp per node. exp is
+  // increasing, so eta >= eta_mean gives mu >= mu_c up to exp's rounding
+  // (below 1e-15 relative), which kScreenMargin covers.
+  const std::optional<double> closed = lognormal_expected(predictor, noise, rule);
+  if (closed) w.expected = *closed;
   for_each_node(predictor, rule, [&](double weight, double eta) {
-    // noise_at's at_zero and mu, without the NB2 size it would also work out.
-    const double raw = mean_from_eta(noise.link, eta);
-    const bool at_zero = !(raw > kMinMean);
-    const double mu = std::min(raw, kMaxMean);
-    if (!at_zero) w.expected += weight * mu;
-    const bool up = centre.at_zero || (!at_zero && mu >= centre.mu);
-    const bool low = at_zero || (!centre.at_zero && mu <= centre.mu);
+    bool up = false;
+    bool low = false;
+    if (closed) {
+      up = eta >= predictor.eta_mean;
+      low = eta <= predictor.eta_mean;
+    } else {
+      // noise_at's at_zero and mu, without the NB2 size it would also work out.
+      const double raw = mean_from_eta(noise.link, eta);
+      const bool at_zero = !(raw > kMinMean);
+      const double mu = std::min(raw, kMaxMean);
+      if (!at_zero) w.expected += weight * mu;
+      up = centre.at_zero || (!at_zero && mu >= centre.mu);
+      low = at_zero || (!centre.at_zero && mu <= centre.mu);
+    }
     if (up) {
       w.w_up += weight;
       int b = 0;

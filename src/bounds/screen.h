@@ -25,7 +25,9 @@
 //
 // The weights are summed by walking the rule's nodes (mixture.h,
 // for_each_node) without building the mixture: no allocation, one exp per
-// node, one tail. Stage 2, for a record stage 1 leaves
+// node (none under the log link when no node's mean is clamped: a node's
+// side is read from its eta, and `expected` is mixture.h's
+// lognormal_expected), one tail. Stage 2, for a record stage 1 leaves
 // unsettled: each side's components are split into kScreenBands bands at 1
 // and 2 sd(eta*) from eta_mean, and each band's weight multiplies the tail at
 // its innermost node (whose mean is the band's nearest to mu_c), so

@@ -162,86 +162,6 @@ void SeriesModel::learn(const Observation& obs, double weight) {
   }
 }
 
-bool SeriesModel::steps_on() const {
-  const ModelSpec& spec = settings_->model;
-  return spec.step_between_refits && spec.refit_every > 1 && spec.link == glm::Link::log;
-}
-
-double SeriesModel::stored_row(std::size_t i) {
-  const TimePoint time = time_at(i);
-  const double* cov = covariate_values_.row(i);
-  if (!season_cache_ok()) return row_for(time, exposure_at(i), cov, step_x_);
-  const DesignInput in{time, origin_.value_or(time), exposure_at(i), cov};
-  return design_row(settings_->model, in, season_values_.row(i), step_x_);
-}
-
-void SeriesModel::start_steps(const Eigen::VectorXd& fit_weights, const Correction& correction, double gamma) {
-  step_correction_ = correction;
-  step_gamma_ = gamma;
-  Eigen::VectorXd beta_star = fit_.coefficients;
-  if (beta_star.size() > 0) beta_star(0) += correction.mean_shift;  // the resistant fit's own intercept
-  step_.reset(beta_star, settings_->model.family, fit_.theta);
-  step_x_.resize(p_);
-  fit_weights_.clear();
-  for (Eigen::Index i = 0; i < X_.rows(); ++i) {
-    const Eigen::RowVectorXd row = X_.row(i);
-    step_.account(row.data(), offset_(i), y_(i), fit_weights(i), 1);
-    *fit_weights_.push_back() = fit_weights(i);
-  }
-  const std::size_t n = step_.rows();
-  step_phi_start_ = n > static_cast<std::size_t>(p_) ? step_.pearson() / static_cast<double>(n - p_) : 1;
-  if (!(step_phi_start_ > 0)) step_phi_start_ = 1;
-}
-
-double SeriesModel::step_weight(double offset, double y, double prior) const {
-  const ModelSpec& spec = settings_->model;
-  if (!spec.reweight || !(prior > 0)) return prior;
-  // As resistant_weights, against the published fit.
-  const double eta = step_x_.dot(fit_.coefficients) + offset;
-  const double mu = std::exp(eta);
-  if (!std::isfinite(mu)) return step_gamma_ * prior;
-  const double quadratic = step_x_.dot(fit_.covariance * step_x_.transpose());
-  const double s = outlying_residual(fit_, y, mu, mu, prior, quadratic);  // log link: d mu / d eta = mu
-  return step_gamma_ * (s > 0 ? prior / (s * s) : prior);
-}
-
-void SeriesModel::step_forward() {
-  const std::size_t guard = settings_->model.guard_records;
-  while (fit_weights_.size() + guard < records_.size()) {
-    const std::size_t i = fit_weights_.size();
-    const double offset = stored_row(i);
-    const double y = static_cast<double>(count_at(i));
-    const double w = step_weight(offset, y, weight_at(i));
-    step_.account(step_x_.data(), offset, y, w, 1);
-    *fit_weights_.push_back() = w;
-  }
-  Eigen::VectorXd beta;
-  Eigen::MatrixXd inverse;
-  if (!step_.solve(beta, inverse)) {
-    refit();  // no step from these sums (an aliased column): the full fit decides
-    return;
-  }
-  const std::size_t n = step_.rows();
-  // Far from beta*, or on a window that no longer fits it: refit fully.
-  const double scale = settings_->model.family == glm::Family::quasipoisson ? step_phi_start_ : 1.0;
-  const double phi_now = n > static_cast<std::size_t>(p_) ? step_.pearson() / static_cast<double>(n - p_) : 0;
-  if (!(step_.distance2(beta) <= kMaxStepDistance * kMaxStepDistance * scale) ||
-      !(phi_now <= kMaxStepDispersionGrowth * step_phi_start_)) {
-    refit();
-    return;
-  }
-  fit_.coefficients = beta;
-  if (fit_.coefficients.size() > 0) fit_.coefficients(0) -= step_correction_.mean_shift;
-  fit_.n = static_cast<int>(n);
-  fit_.df_residual = static_cast<int>(n) - p_;
-  if (settings_->model.family == glm::Family::quasipoisson && fit_.df_residual > 0) {
-    fit_.dispersion = step_.pearson() / fit_.df_residual / step_correction_.dispersion_divisor;
-    fit_.covariance = fit_.dispersion * inverse;
-  } else {
-    fit_.covariance = inverse;
-  }
-}
-
 void SeriesModel::drop_oldest(std::size_t rows) {
   if (step_.active()) {
     // The records leaving the window take their terms out of the sums.
@@ -364,7 +284,7 @@ void SeriesModel::refit() {
     has_fit_ = true;
   }
   // Steps start only from a converged fit; otherwise the next record refits.
-  if (steps && converged) start_steps(fit_weights, correction, gamma);
+  if (steps && converged) start_steps(fit_weights, correction, gamma, small);
   else step_.clear();
   release_workspace();
 }

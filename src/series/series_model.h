@@ -88,6 +88,9 @@ class SeriesModel {
   const std::string& last_fit_note() const { return last_fit_note_; }
   glm::FitStatus last_fit_status() const { return last_fit_status_; }
   std::uint64_t fits_done() const { return fits_done_; }
+  // Times the step's sums were taken again at its own coefficients
+  // (step_forward, series/window_step.h) since construction or restore.
+  std::uint64_t steps_recentred() const { return steps_recentred_; }
   // Records learned since the last refit (0 right after one).
   std::size_t records_since_refit() const { return since_refit_; }
 
@@ -133,13 +136,19 @@ class SeriesModel {
   };
   bool steps_on() const;
   // After a full refit of the current design (X_, y_, offset_): the sums at
-  // its coefficients over the records it used, with the weights it used.
-  void start_steps(const Eigen::VectorXd& fit_weights, const Correction& correction, double gamma);
+  // its coefficients over the records it used, with the weights it used;
+  // `small` is the refit's fast path, whose means are used when it ended at
+  // the steps' beta*.
+  void start_steps(const Eigen::VectorXd& fit_weights, const Correction& correction, double gamma,
+                   const glm::SmallFit& small);
   // The design row (into step_x_) and offset of the window's record i.
   double stored_row(std::size_t i);
   // The prior weight a record enters the step sums with: the resistant
   // down-weighting against the current fit, as resistant_weights gives it.
-  double step_weight(double offset, double y, double prior) const;
+  double step_weight(double offset, double y, double prior);
+  // Starts the step's sums again at the last step's coefficients, each
+  // record of the sums entering with the weight it entered with before.
+  void recentre_steps();
   // Adds the records that entered the fit since, then publishes the step.
   void step_forward();
   // Prior weights for the resistant refit after `fit` of the current design
@@ -227,6 +236,7 @@ class SeriesModel {
   glm::FitStatus last_fit_status_ = glm::FitStatus::failed;
   std::string last_fit_note_ = "not fitted yet";
   std::uint64_t fits_done_ = 0;
+  std::uint64_t steps_recentred_ = 0;
 
   // model.step_between_refits: the sums (empty when off, and after a
   // restore until the next full refit) and the weight each of the window's
@@ -237,6 +247,10 @@ class SeriesModel {
   double step_gamma_ = 1;
   double step_phi_start_ = 1;  // Pearson's statistic / (n - p) when the sums started
   Eigen::RowVectorXd step_x_;
+  // Per-record scratch of the steps (sized by start_steps, so a record
+  // allocates nothing): Cov * x for step_weight, the stepped coefficients.
+  Eigen::VectorXd step_cx_;
+  Eigen::VectorXd step_beta_;
 
   // Frees the refit scratch below.
   void release_workspace();

@@ -1,6 +1,8 @@
 #include "series/window_step.h"
 
+#include <algorithm>
 #include <cmath>
+#include <limits>
 
 namespace tallyd {
 
@@ -21,6 +23,7 @@ void WindowStep::clear() {
   beta_.resize(0);
   information_.resize(0, 0);
   score_.resize(0);
+  factor_.resize(0, 0);
   pearson_ = 0;
   rows_ = 0;
 }
@@ -30,8 +33,13 @@ void WindowStep::account(const double* x, double offset, double y, double weight
   const Eigen::Index p = beta_.size();
   double eta = offset;
   for (Eigen::Index j = 0; j < p; ++j) eta += x[j] * beta_(j);
-  const double mu = std::exp(eta);
+  account_mean(x, std::exp(eta), y, weight, sign);
+}
+
+void WindowStep::account_mean(const double* x, double mu, double y, double weight, double sign) {
+  if (!(weight > 0)) return;
   if (!(mu > 0) || !std::isfinite(mu)) return;
+  const Eigen::Index p = beta_.size();
   // V(mu): mu, or mu + mu^2 / theta for NB2 (Poisson when theta is not a
   // positive finite number). Under the log link d mu / d eta = mu.
   const bool nb = family_ == glm::Family::negbin && std::isfinite(theta_) && theta_ > 0;
@@ -49,24 +57,88 @@ void WindowStep::account(const double* x, double offset, double y, double weight
   else if (rows_ > 0) --rows_;
 }
 
-bool WindowStep::solve(Eigen::VectorXd& beta, Eigen::MatrixXd& inverse_information) const {
-  if (!active_ || rows_ < static_cast<std::size_t>(beta_.size())) return false;
-  const Eigen::LLT<Eigen::MatrixXd, Eigen::Lower> llt(information_);
-  if (llt.info() != Eigen::Success) return false;
+bool WindowStep::solve(Eigen::VectorXd& beta) {
+  const Eigen::Index p = beta_.size();
+  if (!active_ || rows_ < static_cast<std::size_t>(p)) return false;
+  // Cholesky of A (lower triangle), by columns, as Eigen's unblocked LLT
+  // would for these small sizes but without its allocations: this runs
+  // after every record.
+  if (factor_.rows() != p || factor_.cols() != p) factor_.resize(p, p);
+  double largest = 0;
+  double smallest = std::numeric_limits<double>::infinity();
+  for (Eigen::Index j = 0; j < p; ++j) {
+    double d = information_(j, j);
+    for (Eigen::Index k = 0; k < j; ++k) d -= factor_(j, k) * factor_(j, k);
+    if (!(d > 0)) return false;
+    const double root = std::sqrt(d);
+    factor_(j, j) = root;
+    largest = std::max(largest, root);
+    smallest = std::min(smallest, root);
+    for (Eigen::Index i = j + 1; i < p; ++i) {
+      double v = information_(i, j);
+      for (Eigen::Index k = 0; k < j; ++k) v -= factor_(i, k) * factor_(j, k);
+      factor_(i, j) = v / root;
+    }
+  }
   // Positive definite in floating point can still be near-singular (an
   // aliased column); refuse a factor whose diagonal collapsed.
-  const Eigen::VectorXd diag = llt.matrixLLT().diagonal();
-  if (!(diag.minCoeff() > 1e-7 * diag.maxCoeff())) return false;
-  const Eigen::Index p = beta_.size();
-  beta = beta_ + llt.solve(score_);
-  inverse_information = llt.solve(Eigen::MatrixXd::Identity(p, p));
+  if (!(smallest > 1e-7 * largest)) return false;
+  // beta* + A^-1 g: L z = g, then L' s = z.
+  if (beta.size() != p) beta.resize(p);
+  for (Eigen::Index i = 0; i < p; ++i) {
+    double v = score_(i);
+    for (Eigen::Index k = 0; k < i; ++k) v -= factor_(i, k) * beta(k);
+    beta(i) = v / factor_(i, i);
+  }
+  for (Eigen::Index i = p - 1; i >= 0; --i) {
+    double v = beta(i);
+    for (Eigen::Index k = i + 1; k < p; ++k) v -= factor_(k, i) * beta(k);
+    beta(i) = v / factor_(i, i);
+  }
+  beta += beta_;
   return true;
 }
 
+void WindowStep::inverse(double scale, Eigen::MatrixXd& out) const {
+  const Eigen::Index p = factor_.rows();
+  if (out.rows() != p || out.cols() != p) out.resize(p, p);
+  // A^-1 = L^-T L^-1: L^-1 (lower) into out's lower triangle and diagonal,
+  // column by column; then the product into the upper triangle and
+  // diagonal, mirrored at the end.
+  for (Eigen::Index c = 0; c < p; ++c) {
+    for (Eigen::Index i = c; i < p; ++i) {
+      double v = i == c ? 1.0 : 0.0;
+      for (Eigen::Index k = c; k < i; ++k) v -= factor_(i, k) * out(k, c);
+      out(i, c) = v / factor_(i, i);
+    }
+  }
+  // (L^-T L^-1)(a, b) = sum_{k >= b} Linv(k, a) Linv(k, b) for a <= b: it
+  // reads Linv at rows k >= b >= a, which no write of this loop has
+  // touched (the writes are at rows a' <= a, above the diagonal except for
+  // (a, a), written last and read only by its own sum).
+  for (Eigen::Index a = 0; a < p; ++a) {
+    for (Eigen::Index b = p - 1; b >= a; --b) {
+      double v = 0;
+      for (Eigen::Index k = b; k < p; ++k) v += out(k, a) * out(k, b);
+      out(a, b) = scale * v;
+    }
+  }
+  for (Eigen::Index a = 0; a < p; ++a) {
+    for (Eigen::Index b = a + 1; b < p; ++b) out(b, a) = out(a, b);
+  }
+}
+
 double WindowStep::distance2(const Eigen::VectorXd& beta) const {
-  const Eigen::VectorXd d = beta - beta_;
-  const Eigen::VectorXd ad = information_.selfadjointView<Eigen::Lower>() * d;
-  return d.dot(ad);
+  const Eigen::Index p = beta_.size();
+  // d' A d from A's lower triangle: the diagonal once, the rest twice.
+  double sum = 0;
+  for (Eigen::Index j = 0; j < p; ++j) {
+    const double dj = beta(j) - beta_(j);
+    double off = 0;
+    for (Eigen::Index k = 0; k < j; ++k) off += information_(j, k) * (beta(k) - beta_(k));
+    sum += dj * (information_(j, j) * dj + 2 * off);
+  }
+  return sum;
 }
 
 }  // namespace tallyd

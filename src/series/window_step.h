@@ -34,13 +34,17 @@
 
 namespace tallyd {
 
-// A step stands only while it stays near beta*, where its error is small:
-// the series refits fully once the step has moved the coefficients by more
-// than this many standard errors of the last full fit (sqrt of distance2 over
-// that fit's dispersion), or once Pearson's statistic per degree of freedom
-// has grown by more than kMaxStepDispersionGrowth since it (the window no
-// longer looks like the data beta* was fitted to). Chosen on the replay
-// benchmark's feed (docs/benchmarks.md, "Speed, sixth pass").
+// A step stands only while it stays near beta*, where its error is small.
+// Once it has moved the coefficients by more than this many standard errors
+// of the last full fit (sqrt of distance2 over that fit's dispersion), the
+// series takes the sums again at the step's coefficients (reset() and every
+// record of the window again, with the weight it entered with: one more
+// Fisher scoring iteration on the current window, O(n p^2)) and steps from
+// there; it refits fully only if that step too strays, or once Pearson's
+// statistic per degree of freedom has grown by more than
+// kMaxStepDispersionGrowth since the last full fit (the window no longer
+// looks like the data beta* was fitted to). Chosen on the replay benchmark's
+// feed (docs/benchmarks.md, "Speed, sixth pass" and "seventh pass").
 inline constexpr double kMaxStepDistance = 2.0;
 inline constexpr double kMaxStepDispersionGrowth = 1.5;
 
@@ -57,16 +61,23 @@ class WindowStep {
   // elements (the design row without the offset); a record with weight <= 0
   // or a non-finite mean at beta* adds nothing. Precondition: active().
   void account(const double* x, double offset, double y, double weight, double sign);
+  // The same, with the record's mean at beta* given (exp(x' beta* + offset),
+  // e.g. from the fit that produced beta*) instead of computed.
+  void account_mean(const double* x, double mu, double y, double weight, double sign);
 
   // Records whose terms are in the sums (weight > 0).
   std::size_t rows() const { return rows_; }
   double pearson() const { return pearson_; }
   const Eigen::VectorXd& beta_star() const { return beta_; }
 
-  // The step: beta = beta* + A^-1 g and A^-1. False when A is not positive
-  // definite (too few records, an aliased column), leaving the outputs as
-  // they were.
-  bool solve(Eigen::VectorXd& beta, Eigen::MatrixXd& inverse_information) const;
+  // The step: beta = beta* + A^-1 g (into `beta`, resized to p), keeping
+  // A's Cholesky factor for inverse(). False when A is not positive
+  // definite (too few records, an aliased column), leaving `beta` as it was.
+  // Called once per record: no allocation once `beta` has p elements.
+  bool solve(Eigen::VectorXd& beta);
+  // scale * A^-1 into `out` (resized to p x p), from the factor of the last
+  // solve() that returned true. No allocation once `out` is p x p.
+  void inverse(double scale, Eigen::MatrixXd& out) const;
 
   // (beta - beta*)' A (beta - beta*): how far `beta` is from beta*, squared,
   // in the metric of the information (standard errors, for a unit dispersion).
@@ -79,6 +90,7 @@ class WindowStep {
   Eigen::VectorXd beta_;
   Eigen::MatrixXd information_;  // A, lower triangle kept
   Eigen::VectorXd score_;        // g
+  Eigen::MatrixXd factor_;       // L with L L' = A (lower), from the last solve()
   double pearson_ = 0;
   std::size_t rows_ = 0;
 };
