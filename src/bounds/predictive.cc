@@ -25,6 +25,22 @@ std::optional<Method> parse_method(std::string_view text) {
   return std::nullopt;
 }
 
+namespace {
+
+// A record answered from the screen's floors, without bounds: the interval
+// is everything and the p-values are the floors.
+Bounds from_floors(const ScreenOutcome& s) {
+  Bounds b;
+  b.expected = s.expected;
+  b.lower = 0;
+  b.upper = std::numeric_limits<std::int64_t>::max();
+  b.p_high = s.p_high_floor;
+  b.p_low = s.p_low_floor;
+  return b;
+}
+
+}  // namespace
+
 Bounds evaluate(const Predictor& predictor, const CountNoise& noise, std::int64_t observed,
                 const Options& options, Rng* rng) {
   if (!std::isfinite(predictor.eta_mean) || !std::isfinite(predictor.eta_variance) || std::isnan(options.alpha)) {
@@ -50,13 +66,8 @@ Bounds evaluate(const Predictor& predictor, const CountNoise& noise, std::int64_
                                           simulate ? std::max(options.draws, 1) : 0, options.wanted_floor);
     screened_expected = s.expected;
     if (s.settled) {
-      Bounds b;
+      Bounds b = from_floors(s);
       b.screened = true;
-      b.expected = s.expected;
-      b.lower = 0;
-      b.upper = std::numeric_limits<std::int64_t>::max();
-      b.p_high = s.p_high_floor;
-      b.p_low = s.p_low_floor;
       return b;
     }
     if (simulate && options.wanted_floor > 0 && draws_fall_below(options.draws, alpha, options.wanted_floor)) {
@@ -64,13 +75,8 @@ Bounds evaluate(const Predictor& predictor, const CountNoise& noise, std::int64_
       // and the caller would discard them, refit and ask again (with a
       // stream seeded per record, so the draws it then gets do not depend
       // on whether any were made here).
-      Bounds b;
+      Bounds b = from_floors(s);
       b.deferred = true;
-      b.expected = s.expected;
-      b.lower = 0;
-      b.upper = std::numeric_limits<std::int64_t>::max();
-      b.p_high = s.p_high_floor;
-      b.p_low = s.p_low_floor;
       return b;
     }
   }
