@@ -174,12 +174,8 @@ std::int64_t poisson_variate(Rng& rng, double mean) {
                             [mean](std::int64_t k) { return mean / static_cast<double>(k + 1); });
   }
 
-  // PTRS, Hormann (1993), constants from the paper.
-  const double slam = std::sqrt(mean);
-  const double b = 0.931 + 2.53 * slam;
-  const double a = -0.059 + 0.02483 * b;
-  const double inv_alpha = 1.1239 + 1.1328 / (b - 3.4);
-  const double vr = 0.9277 - 3.6224 / (b - 2);
+  // PTRS, Hormann (1993).
+  const auto [slam, b, a, inv_alpha, vr] = ptrs_constants(mean);
   // No accepted k comes near this; it only keeps the conversion defined
   // when us is tiny and the candidate is astronomically large.
   constexpr double kCandidateCap = 4.0e18;

@@ -42,6 +42,16 @@ double log_factorial(std::int64_t k) {
          r * (1.0 / 12 - r2 * (1.0 / 360 - r2 * (1.0 / 1260 - r2 / 1680)));
 }
 
+PtrsConstants ptrs_constants(double mean) {
+  PtrsConstants c;
+  c.slam = std::sqrt(mean);
+  c.b = 0.931 + 2.53 * c.slam;
+  c.a = -0.059 + 0.02483 * c.b;
+  c.inv_alpha = 1.1239 + 1.1328 / (c.b - 3.4);
+  c.vr = 0.9277 - 3.6224 / (c.b - 2);
+  return c;
+}
+
 std::uint64_t stable_hash(std::string_view bytes) {
   std::uint64_t h = 0xcbf29ce484222325ULL;
   for (const char c : bytes) {
@@ -126,12 +136,8 @@ std::int64_t Rng::poisson(double mean) {
   if (mean > kMaxPoissonMean) mean = kMaxPoissonMean;
   if (mean < 10) return poisson_inversion(mean, uniform());
 
-  // PTRS, Hormann (1993), constants from the paper.
-  const double slam = std::sqrt(mean);
-  const double b = 0.931 + 2.53 * slam;
-  const double a = -0.059 + 0.02483 * b;
-  const double inv_alpha = 1.1239 + 1.1328 / (b - 3.4);
-  const double vr = 0.9277 - 3.6224 / (b - 2);
+  // PTRS, Hormann (1993).
+  const auto [slam, b, a, inv_alpha, vr] = ptrs_constants(mean);
   // No accepted k comes near this; it only keeps the conversion defined
   // when us is tiny and the candidate is astronomically large.
   constexpr double kCandidateCap = 4.0e18;

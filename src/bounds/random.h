@@ -31,6 +31,18 @@ std::uint64_t stable_hash(std::string_view bytes);
 // (truncation error below 1 / (1188 k^9) < 1e-16 for k >= 30).
 double log_factorial(std::int64_t k);
 
+// The constants of Hormann's (1993) PTRS Poisson sampler for a mean of 10
+// or more, as given in the paper; shared by Rng::poisson and the
+// simulation's count sampler (count_sampler.h), whose acceptance tests differ.
+struct PtrsConstants {
+  double slam = 0;  // sqrt(mean)
+  double b = 0;
+  double a = 0;
+  double inv_alpha = 0;
+  double vr = 0;
+};
+PtrsConstants ptrs_constants(double mean);
+
 // One step of splitmix64 (Steele, Lea and Flood 2014; Vigna's splitmix64.c):
 // advances `state` by the golden-ratio increment and returns the mixed value.
 std::uint64_t splitmix64_next(std::uint64_t& state);
