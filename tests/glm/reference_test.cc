@@ -154,6 +154,17 @@ void check_against_r(const FitResult& fit, const RCase& c) {
   CHECK(fit.rank == static_cast<int>(c.summary.at("rank")));
 }
 
+// Coefficients (tight) and standard errors (loose) of `fit` against R's `c`,
+// for a case with no aliased term.
+void check_estimates(const FitResult& fit, const RCase& c) {
+  for (Eigen::Index j = 0; j < c.X.cols(); ++j) {
+    INFO("term " << c.terms[static_cast<std::size_t>(j)] << ": ours " << fit.coefficients(j)
+                 << " R " << c.estimate(j));
+    CHECK(close(fit.coefficients(j), c.estimate(j), kTightRel));
+    CHECK(close(std::sqrt(fit.covariance(j, j)), c.std_error(j), kLooseRel));
+  }
+}
+
 }  // namespace
 
 // McCullagh and Nelder (1989, section 6.3.2) ship damage data, MASS::ships
@@ -207,12 +218,7 @@ TEST_CASE("the small-p fast path matches R on Dobson's trial counts", "[R][glm]"
   const Eigen::VectorXd start = Eigen::VectorXd::Zero(c.X.cols());
   REQUIRE(small.fit(c.weight, options, start, fit));
   REQUIRE(fit.status == FitStatus::ok);
-  for (Eigen::Index j = 0; j < c.X.cols(); ++j) {
-    INFO("term " << c.terms[static_cast<std::size_t>(j)] << ": ours " << fit.coefficients(j)
-                 << " R " << c.estimate(j));
-    CHECK(close(fit.coefficients(j), c.estimate(j), kTightRel));
-    CHECK(close(std::sqrt(fit.covariance(j, j)), c.std_error(j), kLooseRel));
-  }
+  check_estimates(fit, c);
   CHECK(close(fit.deviance, c.summary.at("deviance"), kTightRel));
   CHECK(close(fit.aic, c.summary.at("aic"), kTightRel));
   CHECK(close(fit.log_likelihood, c.summary.at("log_likelihood"), kTightRel));
@@ -243,12 +249,7 @@ TEST_CASE("the small-p fast path matches R on a young window that needs the QR",
   start(0) = std::log(c.y.mean());
   REQUIRE(small.fit(c.weight, options, start, fit));
   REQUIRE(fit.status == FitStatus::ok);
-  for (Eigen::Index j = 0; j < c.X.cols(); ++j) {
-    INFO("term " << c.terms[static_cast<std::size_t>(j)] << ": ours " << fit.coefficients(j)
-                 << " R " << c.estimate(j));
-    CHECK(close(fit.coefficients(j), c.estimate(j), kTightRel));
-    CHECK(close(std::sqrt(fit.covariance(j, j)), c.std_error(j), kLooseRel));
-  }
+  check_estimates(fit, c);
   CHECK(close(fit.deviance, c.summary.at("deviance"), kTightRel));
   CHECK(close(fit.dispersion, c.summary.at("dispersion"), kLooseRel));
   CHECK(fit.df_residual == static_cast<int>(c.summary.at("df_residual")));

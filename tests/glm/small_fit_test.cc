@@ -115,6 +115,18 @@ void check_same(const FitResult& fast, const FitResult& ref) {
   CHECK(std::isinf(fast.theta));
 }
 
+// The fast path on the design `small` uses, from `start`: it must accept the
+// fit and agree with fit_glm's from the same start (check_same).
+FitResult fast_as_fit_glm(SmallFit& small, const Eigen::MatrixXd& X, const Eigen::VectorXd& y,
+                          const Eigen::VectorXd& offset, const Eigen::VectorXd& w, const FitOptions& o,
+                          const Eigen::VectorXd& start) {
+  const FitResult ref = tallyd::glm::fit_glm(X, y, offset, w, o, &start, true);
+  FitResult fast;
+  REQUIRE(small.fit(w, o, start, fast));
+  check_same(fast, ref);
+  return fast;
+}
+
 }  // namespace
 
 TEST_CASE("the small-p fit agrees with fit_glm from warm starts", "[glm]") {
@@ -136,12 +148,9 @@ TEST_CASE("the small-p fit agrees with fit_glm from warm starts", "[glm]") {
           for (const Eigen::VectorXd& start : {near, far}) {
             INFO("family " << to_string(family) << " p " << p << " level " << level
                            << " spikes " << spikes << " start " << start(0));
-            const FitResult ref = tallyd::glm::fit_glm(X, y, offset, w, o, &start, true);
             SmallFit small;
             small.use(X, y, offset);
-            FitResult fast;
-            REQUIRE(small.fit(w, o, start, fast));
-            check_same(fast, ref);
+            const FitResult fast = fast_as_fit_glm(small, X, y, offset, w, o, start);
             CHECK(small.estimate_at(fast.coefficients));
             for (Eigen::Index i = 0; i < n; ++i) {
               const double eta = X.row(i).dot(fast.coefficients) + offset(i);
@@ -183,20 +192,14 @@ TEST_CASE("the small-p fit agrees with fit_glm on young windows that need the QR
           start(0) = 1.6;
           INFO("n " << n << " first day " << first_day << " family " << to_string(family)
                     << " spikes " << spikes);
-          const FitResult ref = tallyd::glm::fit_glm(X, y, offset, w, o, &start, true);
           SmallFit small;
           small.use(X, y, offset);
-          FitResult fast;
-          REQUIRE(small.fit(w, o, start, fast));
-          check_same(fast, ref);
+          const FitResult fast = fast_as_fit_glm(small, X, y, offset, w, o, start);
           // The resistant second fit's pattern on the same window.
           w(n / 3) = 0.2;
           w *= static_cast<double>(n) / w.sum();
           const Eigen::VectorXd from = fast.coefficients;
-          const FitResult ref2 = tallyd::glm::fit_glm(X, y, offset, w, o, &from, true);
-          FitResult fast2;
-          REQUIRE(small.fit(w, o, from, fast2));
-          check_same(fast2, ref2);
+          fast_as_fit_glm(small, X, y, offset, w, o, from);
         }
       }
     }
