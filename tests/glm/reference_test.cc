@@ -165,6 +165,22 @@ void check_estimates(const FitResult& fit, const RCase& c) {
   }
 }
 
+// The refit's fast path (glm/small_fit.h, log link, R's tolerance, no null
+// deviance) on case `c` from `start`: it must accept the fit.
+FitResult small_fit_case(const RCase& c, Family family, const Eigen::VectorXd& start) {
+  FitOptions options;
+  options.family = family;
+  options.link = Link::log;
+  options.tolerance = kRTolerance;
+  options.null_deviance = false;
+  tallyd::glm::SmallFit small;
+  small.use(c.X, c.y, c.offset);
+  FitResult fit;
+  REQUIRE(small.fit(c.weight, options, start, fit));
+  REQUIRE(fit.status == FitStatus::ok);
+  return fit;
+}
+
 }  // namespace
 
 // McCullagh and Nelder (1989, section 6.3.2) ship damage data, MASS::ships
@@ -207,17 +223,7 @@ TEST_CASE("Dobson's trial counts match R under the log, sqrt and identity links"
 // It computes no null deviance; the rest must match R as fit_glm does.
 TEST_CASE("the small-p fast path matches R on Dobson's trial counts", "[R][glm]") {
   const RCase c = load_case("dobson_log");
-  FitOptions options;
-  options.family = Family::poisson;
-  options.link = Link::log;
-  options.tolerance = kRTolerance;
-  options.null_deviance = false;
-  tallyd::glm::SmallFit small;
-  small.use(c.X, c.y, c.offset);
-  FitResult fit;
-  const Eigen::VectorXd start = Eigen::VectorXd::Zero(c.X.cols());
-  REQUIRE(small.fit(c.weight, options, start, fit));
-  REQUIRE(fit.status == FitStatus::ok);
+  const FitResult fit = small_fit_case(c, Family::poisson, Eigen::VectorXd::Zero(c.X.cols()));
   check_estimates(fit, c);
   CHECK(close(fit.deviance, c.summary.at("deviance"), kTightRel));
   CHECK(close(fit.aic, c.summary.at("aic"), kTightRel));
@@ -236,19 +242,10 @@ TEST_CASE("the small-p fast path matches R on a young window that needs the QR",
   const Eigen::Index n = c.X.rows();
   REQUIRE(wls.solve(c.X, Eigen::VectorXd::Zero(n), Eigen::VectorXd::Ones(n), 1e-9) == 6);
   REQUIRE_FALSE(wls.used_normal_equations());
-  FitOptions options;
-  options.family = Family::quasipoisson;
-  options.link = Link::log;
-  options.tolerance = kRTolerance;
-  options.null_deviance = false;
-  tallyd::glm::SmallFit small;
-  small.use(c.X, c.y, c.offset);
-  FitResult fit;
   // A warm start as a refit has one: the log of the mean count, the rest 0.
   Eigen::VectorXd start = Eigen::VectorXd::Zero(c.X.cols());
   start(0) = std::log(c.y.mean());
-  REQUIRE(small.fit(c.weight, options, start, fit));
-  REQUIRE(fit.status == FitStatus::ok);
+  const FitResult fit = small_fit_case(c, Family::quasipoisson, start);
   check_estimates(fit, c);
   CHECK(close(fit.deviance, c.summary.at("deviance"), kTightRel));
   CHECK(close(fit.dispersion, c.summary.at("dispersion"), kLooseRel));
