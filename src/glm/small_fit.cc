@@ -6,6 +6,7 @@
 #include <utility>
 
 #include "glm/distribution.h"
+#include "glm/factor_inverse.h"
 #include "glm/wls.h"
 
 namespace tallyd::glm {
@@ -292,26 +293,10 @@ bool SmallFit::step(const Sums& s, double alias_tolerance, double* beta) {
 }
 
 void SmallFit::covariance_from_factor(double dispersion, Eigen::MatrixXd& covariance) const {
-  const auto p = static_cast<int>(X_->cols());
-  // (X'WX)^{-1} = L^{-T} L^{-1}: invert L column by column, then multiply.
-  const auto at = [](int row, int col) { return static_cast<std::size_t>(row * kMaxColumns + col); };
-  Square inv{};  // L^{-1}, lower, row-major
-  for (int c = 0; c < p; ++c) {
-    for (int i = c; i < p; ++i) {
-      double v = i == c ? 1.0 : 0.0;
-      for (int k = c; k < i; ++k) v -= chol_[at(i, k)] * inv[at(k, c)];
-      inv[at(i, c)] = v / chol_[at(i, i)];
-    }
-  }
-  covariance.resize(p, p);
-  for (int a = 0; a < p; ++a) {
-    for (int b = a; b < p; ++b) {
-      double v = 0;
-      for (int k = b; k < p; ++k) v += inv[at(k, a)] * inv[at(k, b)];
-      covariance(a, b) = v * dispersion;
-      covariance(b, a) = v * dispersion;
-    }
-  }
+  const auto lower = [this](Eigen::Index i, Eigen::Index j) {
+    return chol_[static_cast<std::size_t>(i * kMaxColumns + j)];
+  };
+  scaled_inverse_from_factor(lower, X_->cols(), dispersion, covariance);
 }
 
 bool SmallFit::fit(const Eigen::VectorXd& weights, const FitOptions& options,

@@ -4,6 +4,8 @@
 #include <cmath>
 #include <limits>
 
+#include "glm/factor_inverse.h"
+
 namespace tallyd {
 
 void WindowStep::reset(const Eigen::VectorXd& beta_star, glm::Family family, double theta) {
@@ -100,32 +102,8 @@ bool WindowStep::solve(Eigen::VectorXd& beta) {
 }
 
 void WindowStep::inverse(double scale, Eigen::MatrixXd& out) const {
-  const Eigen::Index p = factor_.rows();
-  if (out.rows() != p || out.cols() != p) out.resize(p, p);
-  // A^-1 = L^-T L^-1: L^-1 (lower) into out's lower triangle and diagonal,
-  // column by column; then the product into the upper triangle and
-  // diagonal, mirrored at the end.
-  for (Eigen::Index c = 0; c < p; ++c) {
-    for (Eigen::Index i = c; i < p; ++i) {
-      double v = i == c ? 1.0 : 0.0;
-      for (Eigen::Index k = c; k < i; ++k) v -= factor_(i, k) * out(k, c);
-      out(i, c) = v / factor_(i, i);
-    }
-  }
-  // (L^-T L^-1)(a, b) = sum_{k >= b} Linv(k, a) Linv(k, b) for a <= b: it
-  // reads Linv at rows k >= b >= a, which no write of this loop has
-  // touched (the writes are at rows a' <= a, above the diagonal except for
-  // (a, a), written last and read only by its own sum).
-  for (Eigen::Index a = 0; a < p; ++a) {
-    for (Eigen::Index b = p - 1; b >= a; --b) {
-      double v = 0;
-      for (Eigen::Index k = b; k < p; ++k) v += out(k, a) * out(k, b);
-      out(a, b) = scale * v;
-    }
-  }
-  for (Eigen::Index a = 0; a < p; ++a) {
-    for (Eigen::Index b = a + 1; b < p; ++b) out(b, a) = out(a, b);
-  }
+  glm::scaled_inverse_from_factor([this](Eigen::Index i, Eigen::Index j) { return factor_(i, j); }, factor_.rows(),
+                                  scale, out);
 }
 
 double WindowStep::distance2(const Eigen::VectorXd& beta) const {
