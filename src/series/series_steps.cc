@@ -113,8 +113,7 @@ void SeriesModel::step_forward() {
 
 void SeriesModel::recentre_steps() {
   ++steps_recentred_;
-  const Eigen::VectorXd centre = step_beta_;
-  step_.reset(centre, settings_->model.family, fit_.theta);
+  step_.reset(step_beta_, settings_->model.family, fit_.theta);
   for (std::size_t i = 0; i < fit_weights_.size(); ++i) {
     const double offset = stored_row(i);
     step_.account(step_x_.data(), offset, static_cast<double>(count_at(i)), *fit_weights_.row(i), 1);
