@@ -1,6 +1,7 @@
 #include "series/series_model.h"
 
 #include <cmath>
+#include <string>
 
 #include <catch2/catch.hpp>
 #include <fmt/format.h>
@@ -32,6 +33,22 @@ std::vector<Observation> seasonal_series() {
     out.push_back(o);
   }
   return out;
+}
+
+// Saves `model` in `layout` and loads that state into `restored` (offering a
+// 1 MiB block for its rows when `offer`); the restored model must save the
+// same state again. Returns the state.
+std::string save_and_restore(const SeriesModel& model, SeriesModel& restored, StateLayout layout, bool offer) {
+  StateWriter w(layout);
+  model.save_state(w);
+  StateReader r(w.text(), layout);
+  if (offer) r.offer_memory(BulkMemory::create(1 << 20));
+  restored.load_state(r);
+  REQUIRE_FALSE(r.failed());
+  StateWriter again(layout);
+  restored.save_state(again);
+  CHECK(again.text() == w.text());
+  return std::string(w.text());
 }
 
 }  // namespace
@@ -213,16 +230,8 @@ TEST_CASE("exposure and weight rows start at the first value other than 1 and ro
         INFO("cut " << cut << " binary " << (layout == StateLayout::binary) << " offer " << offer);
         SeriesModel reference("s", settings);
         for (std::size_t i = 0; i < cut; ++i) reference.learn(records[i], weight_of(i));
-        StateWriter w(layout);
-        reference.save_state(w);
-        StateReader r(w.text(), layout);
-        if (offer) r.offer_memory(BulkMemory::create(1 << 20));
         SeriesModel restored("s", settings);
-        restored.load_state(r);
-        REQUIRE_FALSE(r.failed());
-        StateWriter again(layout);
-        restored.save_state(again);
-        CHECK(again.text() == w.text());
+        save_and_restore(reference, restored, layout, offer);
         for (std::size_t i = cut; i < records.size(); ++i) {
           reference.learn(records[i], weight_of(i));
           restored.learn(records[i], weight_of(i));
@@ -272,19 +281,11 @@ TEST_CASE("a record whose count or time does not fit 32 bits is kept in full and
         INFO("cut " << cut << " binary " << (layout == StateLayout::binary) << " offer " << offer);
         SeriesModel reference("s", settings);
         for (std::size_t i = 0; i < cut; ++i) reference.learn(records[i]);
-        StateWriter w(layout);
-        reference.save_state(w);
-        if (layout == StateLayout::text && cut == 50) CHECK(w.text().find(" 5000000000 ") != std::string::npos);
-        if (layout == StateLayout::text && cut == 71)
-          CHECK(w.text().find(fmt::format("\n{} ", late.time.time_since_epoch().count())) != std::string::npos);
-        StateReader r(w.text(), layout);
-        if (offer) r.offer_memory(BulkMemory::create(1 << 20));
         SeriesModel restored("s", settings);
-        restored.load_state(r);
-        REQUIRE_FALSE(r.failed());
-        StateWriter again(layout);
-        restored.save_state(again);
-        CHECK(again.text() == w.text());
+        const std::string saved = save_and_restore(reference, restored, layout, offer);
+        if (layout == StateLayout::text && cut == 50) CHECK(saved.find(" 5000000000 ") != std::string::npos);
+        if (layout == StateLayout::text && cut == 71)
+          CHECK(saved.find(fmt::format("\n{} ", late.time.time_since_epoch().count())) != std::string::npos);
         CHECK(restored.last_time() == reference.last_time());
         CHECK(restored.first_time_in_window() == reference.first_time_in_window());
         Observation next = late;
