@@ -4,7 +4,6 @@
 #include <cmath>
 #include <limits>
 
-#include <boost/math/special_functions/erf.hpp>
 
 
 namespace tallyd::bounds {
@@ -31,7 +30,8 @@ double noise_width(const CountNoise& noise, double eta) {
 
 }  // namespace
 
-QuadratureRule choose_rule(const Predictor& predictor, const CountNoise& noise, int nodes, double alpha) {
+QuadratureRule choose_rule(const Predictor& predictor, const CountNoise& noise, int nodes, double alpha,
+                           int grid_limit, double z_alpha) {
   QuadratureRule r;
   r.hermite_nodes = std::clamp(nodes, 1, kMaxHermiteNodes);
   if (predictor.eta_variance == 0) {
@@ -39,7 +39,7 @@ QuadratureRule choose_rule(const Predictor& predictor, const CountNoise& noise, 
     return r;
   }
   const double sd = std::sqrt(predictor.eta_variance);
-  const double z = std::sqrt(2.0) * boost::math::erfc_inv(2 * alpha);  // P(Z > z) = alpha
+  const double z = std::isnan(z_alpha) ? upper_quantile(alpha).z : z_alpha;  // P(Z > z) = alpha
   // The narrowest noise the bounds depend on: at both bounds' scale on the
   // eta axis. Not at the observed count: a wild count (up to 2^53) would
   // otherwise buy a huge grid for one record; its p-value only needs to be
@@ -52,9 +52,89 @@ QuadratureRule choose_rule(const Predictor& predictor, const CountNoise& noise, 
   const double step = std::min(sd, width) / kGridStepsPerWidth;
   const double span = 2 * kGridHalfWidth * sd;
   const double wanted = std::ceil(span / step) + 1;
+  if (grid_limit > 0) {
+    const int limit = std::clamp(grid_limit, kMinGridNodeLimit, kMaxGridNodes);
+    if (!(wanted <= limit)) {
+      r.grid_nodes = limit;
+      r.grid_capped = true;
+      r.bracket = true;
+      // P(Z > H) = kBracketDropped * alpha, and at least 2 beyond z_alpha
+      // (only binding for alpha below ~1e-284, where the product is clamped;
+      // the mass beyond z_alpha + 2 is then far below 1e-16 alpha anyway).
+      r.half_width = std::max(upper_quantile(std::max(kBracketDropped * alpha, 1e-300)).z, z + 2);
+      return r;
+    }
+  }
   r.grid_nodes = wanted >= kMaxGridNodes ? kMaxGridNodes : static_cast<int>(wanted);
   r.grid_capped = wanted > kMaxGridNodes;
   return r;
+}
+
+double bracket_excess(const QuadratureRule& rule) {
+  const double d = 2 * rule.half_width / (rule.grid_nodes - 1);
+  const double c = rule.half_width * d + 0.5 * d * d;
+  return c < 1 ? c / (1 - c) : std::numeric_limits<double>::infinity();
+}
+
+namespace {
+
+// P(Z <= z) and P(Z > z), each from the side where it is small, so bin
+// masses far out keep their relative accuracy.
+double lower_tail(double z) { return 0.5 * std::erfc(-z / std::sqrt(2.0)); }
+double upper_tail(double z) { return 0.5 * std::erfc(z / std::sqrt(2.0)); }
+
+// P(a < Z <= b), a < b.
+double bin_mass(double a, double b) {
+  if (b <= 0) return lower_tail(b) - lower_tail(a);
+  if (a >= 0) return upper_tail(a) - upper_tail(b);
+  return 1 - lower_tail(a) - upper_tail(b);
+}
+
+// `out` as `m` with node j's weight set to weight[j] (nodes pooled at zero
+// into w0, plus `extra_zero`), and the components clamped at kMaxMean (the
+// last ones: every link is non-decreasing) pooled into one.
+void reweigh(const Mixture& m, const std::vector<double>& weight, double extra_zero, Mixture& out) {
+  out = m;
+  const std::size_t nodes = weight.size();
+  const std::size_t first = nodes - static_cast<std::size_t>(m.n);  // nodes before it are pooled at zero
+  out.w0 = extra_zero;
+  for (std::size_t j = 0; j < first; ++j) out.w0 += weight[j];
+  int n = 0;
+  for (std::size_t i = 0; i < static_cast<std::size_t>(m.n); ++i) {
+    const double w = weight[first + i];
+    if (n > 0 && m.mu[i] >= kMaxMean && out.mu[static_cast<std::size_t>(n - 1)] >= kMaxMean) {
+      out.w[static_cast<std::size_t>(n - 1)] += w;
+      continue;
+    }
+    const std::size_t k = static_cast<std::size_t>(n++);
+    out.w[k] = w;
+    out.mu[k] = m.mu[i];
+    out.size[k] = m.size[i];
+    out.q[k] = m.q[i];
+    out.inv_mu[k] = m.inv_mu[i];
+    out.noise[k] = m.noise[i];
+  }
+  out.n = n;
+}
+
+}  // namespace
+
+void bracket_mixtures(const QuadratureRule& rule, const Mixture& m, Mixture& low, Mixture& high) {
+  const int n = rule.grid_nodes;
+  const double h = rule.half_width;
+  const double d = 2 * h / (n - 1);
+  const auto z = [&](int j) { return j == n - 1 ? h : -h + d * j; };
+  std::vector<double> bin(static_cast<std::size_t>(n - 1));  // bin j: (z_j, z_{j+1}]
+  for (int j = 0; j + 1 < n; ++j) bin[static_cast<std::size_t>(j)] = bin_mass(z(j), z(j + 1));
+  std::vector<double> weight(static_cast<std::size_t>(n));
+  // High: each bin at its upper node; all of Z <= z_0 at node 0; Z > z_{N-1} dropped.
+  weight[0] = lower_tail(z(0));
+  for (int j = 1; j < n; ++j) weight[static_cast<std::size_t>(j)] = bin[static_cast<std::size_t>(j - 1)];
+  reweigh(m, weight, 0.0, high);
+  // Low: each bin at its lower node; all of Z > z_{N-1} at the last node; Z <= z_0 at count 0.
+  for (int j = 0; j + 1 < n; ++j) weight[static_cast<std::size_t>(j)] = bin[static_cast<std::size_t>(j)];
+  weight[static_cast<std::size_t>(n - 1)] = upper_tail(z(n - 1));
+  reweigh(m, weight, lower_tail(z(0)), low);
 }
 
 std::optional<double> lognormal_expected(const Predictor& predictor, const CountNoise& noise,

@@ -13,6 +13,7 @@
 
 #include <cmath>
 #include <cstdint>
+#include <limits>
 #include <optional>
 #include <vector>
 
@@ -35,19 +36,34 @@ inline constexpr double kHermiteMaxRho = 1.5;
 inline constexpr double kGridHalfWidth = 12;
 inline constexpr double kGridStepsPerWidth = 3;
 inline constexpr int kMaxGridNodes = 16384;
+// The bracketing grid (Options::grid_node_limit): when the grid would want
+// more nodes than the limit, it takes exactly the limit (at least
+// kMinGridNodeLimit), over +-H sd(eta*) with P(|Z| > H) = 2 kBracketDropped
+// alpha, and bracket_mixtures() gives it the weights that bound the
+// mixture's tails from above.
+inline constexpr int kMinGridNodeLimit = 64;
+inline constexpr double kBracketDropped = 1e-16;
 
 struct QuadratureRule {
   bool grid = false;       // trapezoid grid instead of Gauss-Hermite
   int hermite_nodes = 1;   // Gauss-Hermite nodes when !grid
   int grid_nodes = 0;      // grid nodes when grid
-  bool grid_capped = false;  // the grid wanted more than kMaxGridNodes nodes
+  bool grid_capped = false;  // the grid wanted more nodes than it has
+  bool bracket = false;    // a capped grid judged by bracket_mixtures (Options::grid_node_limit)
+  double half_width = kGridHalfWidth;  // grid: nodes over eta_mean +- half_width sd(eta*)
   double rho = 0;          // sd(eta*) over the narrowest relevant noise width
 };
 
 // The rule quadrature_bounds uses for these inputs (same preconditions).
 // The narrowest relevant noise width is taken at eta_mean -+ z_alpha sd
 // (for the log link Poisson, 1/sqrt(mean) there), not at the observed count.
-QuadratureRule choose_rule(const Predictor& predictor, const CountNoise& noise, int nodes, double alpha);
+// grid_limit as Options::grid_node_limit (0: no bracketing, the grid is cut
+// at kMaxGridNodes as before; otherwise clamped to
+// [kMinGridNodeLimit, kMaxGridNodes]). z_alpha: P(Z > z_alpha) = alpha,
+// or NaN to have it computed here (predictive.h, upper_quantile).
+QuadratureRule choose_rule(const Predictor& predictor, const CountNoise& noise, int nodes, double alpha,
+                           int grid_limit = kDefaultGridNodeLimit,
+                           double z_alpha = std::numeric_limits<double>::quiet_NaN());
 
 // The log link's shortcut for the mixture's E[Y]: with a Gauss-Hermite rule
 // whose every node has its mean inside (kMinMean, kMaxMean) (no component
@@ -87,6 +103,31 @@ void for_each_node(const Predictor& predictor, const QuadratureRule& rule, Node&
 // Fills `m` (which must be default-constructed) with the rule's components.
 void build_mixture(const Predictor& predictor, const CountNoise& noise, const QuadratureRule& rule, Mixture& m);
 
+// For a bracketing rule (rule.bracket), from the grid's mixture `m` (built
+// by build_mixture with the same rule): two mixtures over the same nodes
+// z_0 < ... < z_{N-1} (standardised, spacing D), each node's weight
+// replaced by the exact Gaussian mass of a neighbouring bin of eta*:
+//   high: node j gets P(z_{j-1} < Z <= z_j) (node 0 all of Z <= z_0),
+//   low:  node j gets P(z_j <= Z < z_{j+1}) (node N-1 all of Z >= z_{N-1}),
+//         and Z < z_0 goes to the mass at count 0.
+// Every count noise here is stochastically increasing in eta (screen.h), so
+// moving each bin's mass to its upper edge can only raise P(Y >= k) and to
+// its lower edge only raise P(Y <= k): the high mixture's upper tails and
+// the low mixture's lower tails are upper bounds on the true mixture's
+// (eta* exactly Gaussian), apart from the mass above z_{N-1}, which the
+// high mixture drops (at most kBracketDropped * alpha). Summing by parts,
+// with s_j the count tail at node j and P_j the bin masses,
+//   S_high - S_true <= S_high - S_low <= c S_high + e,  c = H D + D^2 / 2,
+// (P_{j-1} - P_j <= P_{j-1} (z_j D + D^2 / 2) for a Gaussian), e a few
+// times kBracketDropped * alpha; the same below. Components whose mean is
+// clamped at kMaxMean are one distribution and are pooled into one (exact).
+// `expected` is m's.
+void bracket_mixtures(const QuadratureRule& rule, const Mixture& m, Mixture& low, Mixture& high);
+
+// The relative excess c / (1 - c) of a bracketing rule's tails over the
+// true mixture's (see bracket_mixtures; +inf when c >= 1).
+double bracket_excess(const QuadratureRule& rule);
+
 // P(Y = k) of the mixture, from the component pmfs at k.
 double mass(const Mixture& m, std::int64_t k, const PerNode& pmf);
 // Component pmfs at k -> at k + 1 (from k = -1: the pmfs at 0).
@@ -117,16 +158,17 @@ void for_each_node(const Predictor& predictor, const QuadratureRule& rule, Node&
     // steps per narrower width the error is far below double rounding.
     const double sd = std::sqrt(predictor.eta_variance);
     const int n = rule.grid_nodes;
-    const double step = 2 * kGridHalfWidth * sd / (n - 1);
+    const double half = rule.half_width;
+    const double step = 2 * half * sd / (n - 1);
     std::vector<double> weight(static_cast<std::size_t>(n));
     double total = 0;
     for (int i = 0; i < n; ++i) {
-      const double x = -kGridHalfWidth + step / sd * i;  // standardised
+      const double x = -half + step / sd * i;  // standardised
       weight[static_cast<std::size_t>(i)] = std::exp(-0.5 * x * x);
       total += weight[static_cast<std::size_t>(i)];
     }
     for (int i = 0; i < n; ++i) {
-      node(weight[static_cast<std::size_t>(i)] / total, predictor.eta_mean - kGridHalfWidth * sd + step * i);
+      node(weight[static_cast<std::size_t>(i)] / total, predictor.eta_mean - half * sd + step * i);
     }
     return;
   }

@@ -4,6 +4,8 @@
 #include <cmath>
 #include <limits>
 
+#include <boost/math/special_functions/erf.hpp>
+
 #include "bounds/count_noise.h"
 #include "bounds/quadrature.h"
 #include "bounds/screen.h"
@@ -23,6 +25,13 @@ std::optional<Method> parse_method(std::string_view text) {
   if (text == "simulate") return Method::simulate;
   if (text == "quadrature") return Method::quadrature;
   return std::nullopt;
+}
+
+AlphaQuantile upper_quantile(double alpha) {
+  AlphaQuantile q;
+  q.alpha = std::clamp(alpha, 1e-300, 0.5);
+  q.z = std::sqrt(2.0) * boost::math::erfc_inv(2 * q.alpha);
+  return q;
 }
 
 namespace {
@@ -56,6 +65,7 @@ Bounds evaluate(const Predictor& predictor, const CountNoise& noise, std::int64_
   Predictor p = predictor;
   p.eta_variance = std::max(p.eta_variance, 0.0);  // x'Cx can come out a hair below 0
   const double alpha = std::clamp(options.alpha, 1e-300, 0.5);
+  const double z_alpha = options.quantile.alpha == alpha ? options.quantile.z : upper_quantile(alpha).z;
   // Counts beyond 2^53 are judged as 2^53, where the distribution is censored.
   observed = std::min(observed, kMaxCount);
 
@@ -63,7 +73,8 @@ Bounds evaluate(const Predictor& predictor, const CountNoise& noise, std::int64_
   double screened_expected = 0;
   if (options.screen) {
     const ScreenOutcome s = screen_record(p, noise, observed, options.quadrature_nodes, alpha,
-                                          simulate ? std::max(options.draws, 1) : 0, options.wanted_floor);
+                                          simulate ? std::max(options.draws, 1) : 0, options.wanted_floor,
+                                          options.grid_node_limit, z_alpha);
     screened_expected = s.expected;
     if (s.settled) {
       Bounds b = from_floors(s);
@@ -87,7 +98,7 @@ Bounds evaluate(const Predictor& predictor, const CountNoise& noise, std::int64_
     if (b.screened) b.expected = screened_expected;
     return b;
   }
-  return quadrature_bounds(p, noise, observed, options.quadrature_nodes, alpha);
+  return quadrature_bounds(p, noise, observed, options.quadrature_nodes, alpha, options.grid_node_limit, z_alpha);
 }
 
 }  // namespace tallyd::bounds

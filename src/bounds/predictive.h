@@ -37,7 +37,8 @@
 // per call (quadrature.h, choose_rule):
 //   rho <= 1.5: Gauss-Hermite with quadrature_nodes nodes;
 //   rho >  1.5: a trapezoid grid in eta over +-12 sd(eta*) with 3 steps per
-//     min(sd(eta*), noise width), i.e. ~72 max(1, rho) nodes, at most 16384.
+//     min(sd(eta*), noise width), i.e. ~72 max(1, rho) nodes, at most
+//     Options::grid_node_limit (the bracketing grid below takes over there).
 // The count pmfs and CDFs are smooth (analytic) functions of eta, so the
 // trapezoid rule on this Gaussian-weighted integrand converges
 // geometrically in 1/step; tested against Boost.Math's adaptive
@@ -46,12 +47,30 @@
 // one Boost.Math tail per node (~0.1-1 us each). Limits: the step follows
 // the noise at the bounds, so p-values of counts far beyond them (narrower
 // noise still) lose relative accuracy, though never their side of alpha,
-// which the bounds settle; past 16384 nodes
-// (rho >~ 227, e.g. mean 2.6e6 with eta_variance 0.02) the step widens and
-// the error is no longer negligible; Gaussian mass beyond 12 sd (~4e-33) is
+// which the bounds settle; Gaussian mass beyond 12 sd (~4e-33) is
 // dropped, so p-values far below that lose relative accuracy; the sqrt and
 // identity links clamp mu at 0, a kink either rule resolves poorly when
 // eta* has mass near 0. Simulation has none of these limits.
+//
+// Bounded work: the bracketing grid. The grid wants ~72 rho nodes, and rho
+// grows as exp(z_alpha sd / 2) under the log link: a poorly identified fit
+// (sd(eta*) of 1-5, as when two annual harmonics rest on five months of
+// records and are extrapolated) wanted 16384 nodes and took 0.1-20 s per
+// record (docs/benchmarks.md, "Judging on a poorly identified fit"). When
+// the grid wants more than Options::grid_node_limit nodes (N), it takes N
+// nodes over +-H sd, P(|Z| > H) = 2e-16 alpha, and each side is judged on
+// a mixture that puts every bin's exact Gaussian mass at the bin's outer
+// edge (mixture.h, bracket_mixtures): its tail is an upper bound on the
+// true mixture's, at most a relative c / (1 - c) above it, c = H D + D^2/2,
+// D = 2H / (N - 1) (N = 2048, alpha = 1e-3: H = 9.01, c = 0.079, 8.6%).
+// So a bracketed record alerts only when the true mixture's p-value is at
+// or below alpha (up to the rounding above): the verdict is conservative,
+// and a record whose true p-value lies within that margin below alpha is
+// not flagged. The reported p-values and bounds are those upper bounds.
+// Work per record is then at most N component tails per probe and N
+// multiply-adds per step, whatever the fit; components clamped at the
+// largest mean (1e9) are pooled into one. 0 keeps the earlier cut at 16384
+// nodes (rho >~ 227): a plain trapezoid whose error is then unbounded.
 #pragma once
 
 #include <cstdint>
@@ -81,12 +100,29 @@ struct CountNoise {
   double theta = 0;       // negbin size; 0, +inf or NaN means the Poisson limit
 };
 
+// Options::grid_node_limit's default (see "Accuracy of the quadrature").
+inline constexpr int kDefaultGridNodeLimit = 2048;
+
+// The upper normal quantile of a one-sided alpha, z with P(Z > z) = alpha:
+// Boost.Math's erfc_inv costs ~0.4 us, comparable to judging a whole record
+// the screen settles, so a caller judging many records at one alpha
+// computes it once (upper_quantile) and passes it in Options.
+struct AlphaQuantile {
+  double alpha = 0;  // the alpha z belongs to; 0: none (evaluate computes z itself)
+  double z = 0;
+};
+AlphaQuantile upper_quantile(double alpha);  // alpha clamped as in evaluate
+
 struct Options {
   Method method = Method::quadrature;
   int draws = 10000;          // simulate: number of draws (at least 1 is used)
   int quadrature_nodes = 48;  // quadrature: Gauss-Hermite nodes, clamped to [1, 256]; 1 when eta_variance == 0.
                               // Used while rho <= 1.5; a grid rule otherwise. See "Accuracy of the quadrature" above.
   double alpha = 0.001;       // one-sided tail probability for each bound; clamped to [1e-300, 0.5]
+  AlphaQuantile quantile;     // used when quantile.alpha is alpha after clamping; computed per call otherwise
+  int grid_node_limit = kDefaultGridNodeLimit;  // quadrature: most grid nodes before the bracketing grid
+                              // takes over (see "Accuracy of the quadrature"); clamped to [64, 16384];
+                              // 0: no bracketing, the grid is cut at 16384 nodes as before.
   bool screen = false;        // settle records that provably raise no alert before the full evaluation
                               // (bounds/screen.h): never changes a quadrature verdict; changes a simulate
                               // verdict with probability <= 2e-12 per record; simulate's draws also stop

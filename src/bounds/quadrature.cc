@@ -227,8 +227,8 @@ struct Guesses {
 // where the moments of a log-link mixture are swamped by its far tail.
 // Each is pushed a little outwards, so the first probe tends to land in the
 // tail and stepping back towards the centre finishes the job.
-Guesses guess_bounds(const Mixture& m, const Predictor& predictor, const CountNoise& noise, double alpha) {
-  const double z = std::sqrt(2.0) * boost::math::erfc_inv(2 * alpha);  // P(Z > z) = alpha
+Guesses guess_bounds(const Mixture& m, const Predictor& predictor, const CountNoise& noise, double z) {
+  // z: P(Z > z) = alpha
   const double e = m.expected;
   double variance = m.w0 * e * e;
   double third = -m.w0 * e * e * e;
@@ -275,13 +275,76 @@ Guesses guess_bounds(const Mixture& m, const Predictor& predictor, const CountNo
   return g;
 }
 
+// P(Y <= observed) on m, continuing `w` (a walker of a lower-bound search
+// on m) when it can step there, otherwise by one probe.
+double cdf_at(const Mixture& m, Walker w, std::int64_t observed) {
+  if (w.reach > 0 && w.k <= observed && observed - w.k <= std::min(kWalk, w.reach)) {
+    while (w.k < observed) step(m, +1, w);
+    return w.value;
+  }
+  PerNode pmf;
+  return probe(m, observed, pmf).cdf;
+}
+
+// P(Y >= observed) = S(observed - 1) on m, observed >= 1, continuing `w` (a
+// walker of an upper-bound search on m) when it can step there.
+double at_least_at(const Mixture& m, Walker w, std::int64_t observed) {
+  if (w.reach > 0 && w.k >= observed - 1 && w.k - (observed - 1) <= std::min(kWalk, w.reach)) {
+    while (w.k > observed - 1) step(m, -1, w);
+    return w.value;
+  }
+  PerNode pmf;
+  const Probe p = probe(m, observed, pmf);
+  return p.sf + mass(m, observed, pmf);
+}
+
+// Keeps each p-value on the side of alpha its bound implies. The true CDF is
+// monotone, so F(observed) and S(observed - 1) lie on the same side of
+// alpha as the values computed at the bounds; this only undoes rounding
+// that would otherwise break the contract.
+void keep_sides(const Boundary& low, const Boundary& high, std::int64_t observed, Bounds& b) {
+  if (observed > b.upper) b.p_high = std::min(b.p_high, high.tail_value);
+  else b.p_high = std::max(b.p_high, high.body_value);
+  if (observed < b.lower) b.p_low = std::min(b.p_low, low.tail_value);
+  else b.p_low = std::max(b.p_low, low.body_value);
+  b.p_low = std::clamp(b.p_low, 0.0, 1.0);
+  b.p_high = std::clamp(b.p_high, 0.0, 1.0);
+}
+
+// The bracketing rule: each side searched and judged on its own mixture.
+Bounds bracketed_bounds(const Predictor& predictor, const CountNoise& noise, std::int64_t observed, double alpha,
+                        double z_alpha, const QuadratureRule& rule, const Mixture& m) {
+  Mixture low_m;
+  Mixture high_m;
+  bracket_mixtures(rule, m, low_m, high_m);
+  const Guesses guess = guess_bounds(m, predictor, noise, z_alpha);
+  const Boundary low = find_boundary(low_m, alpha, +1, guess.lower, guess.stride);
+  const Boundary high = find_boundary(high_m, alpha, -1, guess.upper, guess.stride);
+  Bounds b;
+  b.expected = m.expected;
+  b.lower = low.body_k;
+  b.upper = high.tail_k;
+  if (observed < 0) {
+    b.p_low = 0;
+    b.p_high = 1;
+  } else {
+    b.p_low = cdf_at(low_m, low.walker, observed);
+    b.p_high = observed == 0 ? 1.0 : at_least_at(high_m, high.walker, observed);
+  }
+  keep_sides(low, high, observed, b);
+  return b;
+}
+
 }  // namespace
 
 Bounds quadrature_bounds(const Predictor& predictor, const CountNoise& noise, std::int64_t observed,
-                         int nodes, double alpha) {
+                         int nodes, double alpha, int grid_limit, double z_alpha) {
+  if (std::isnan(z_alpha)) z_alpha = upper_quantile(alpha).z;
+  const QuadratureRule rule = choose_rule(predictor, noise, nodes, alpha, grid_limit, z_alpha);
   Mixture m;
-  build_mixture(predictor, noise, choose_rule(predictor, noise, nodes, alpha), m);
-  const Guesses guess = guess_bounds(m, predictor, noise, alpha);
+  build_mixture(predictor, noise, rule, m);
+  if (rule.bracket) return bracketed_bounds(predictor, noise, observed, alpha, z_alpha, rule, m);
+  const Guesses guess = guess_bounds(m, predictor, noise, z_alpha);
 
   const Boundary low = find_boundary(m, alpha, +1, guess.lower, guess.stride);
   const Boundary high = find_boundary(m, alpha, -1, guess.upper, guess.stride);

@@ -23,6 +23,7 @@
 #pragma once
 
 #include <cstdint>
+#include <limits>
 
 #include "bounds/mixture.h"
 #include "bounds/predictive.h"
@@ -33,8 +34,12 @@ namespace tallyd::bounds {
 
 // Preconditions (checked by evaluate): eta_mean and eta_variance finite,
 // eta_variance >= 0, alpha in [1e-300, 0.5], observed <= 2^53. nodes is
-// clamped to [1, kMaxHermiteNodes].
+// clamped to [1, kMaxHermiteNodes]; grid_limit and z_alpha as choose_rule's.
+// With a bracketing rule (rule.bracket) the lower bound and p_low come from
+// bracket_mixtures' low mixture, the upper bound and p_high from its high
+// mixture: each an upper bound on the true mixture's tail (predictive.h).
 Bounds quadrature_bounds(const Predictor& predictor, const CountNoise& noise, std::int64_t observed,
-                         int nodes, double alpha);
+                         int nodes, double alpha, int grid_limit = kDefaultGridNodeLimit,
+                         double z_alpha = std::numeric_limits<double>::quiet_NaN());
 
 }  // namespace tallyd::bounds

@@ -174,11 +174,18 @@ bool settle_without_tails(double w_up, double w_low, const NoiseAt& centre, std:
 }  // namespace
 
 ScreenOutcome screen_record(const Predictor& predictor, const CountNoise& noise, std::int64_t observed,
-                            int nodes, double alpha, int draws, double wanted) {
+                            int nodes, double alpha, int draws, double wanted, int grid_limit, double z_alpha) {
   ScreenOutcome out;
-  const QuadratureRule rule = choose_rule(predictor, noise, nodes, alpha);
+  const QuadratureRule rule = choose_rule(predictor, noise, nodes, alpha, grid_limit, z_alpha);
   const NoiseAt centre = noise_at(noise, mean_from_eta(noise.link, predictor.eta_mean));
-  const Walk w = walk_nodes(predictor, noise, rule, centre);
+  Walk w = walk_nodes(predictor, noise, rule, centre);
+  if (rule.bracket) {
+    // The full search reports the bracketing mixtures' tails, which bound
+    // the true mixture's from above; the true mixture has exactly 1/2 on
+    // each side of eta_mean (its dropped mass is far inside kScreenMargin).
+    w.w_up = std::min(w.w_up, 0.5);
+    w.w_low = std::min(w.w_low, 0.5);
+  }
   out.expected = w.expected;
   if (observed < 0) return out;  // p_low = 0: leave it to the full evaluation
 
@@ -200,16 +207,25 @@ ScreenOutcome screen_record(const Predictor& predictor, const CountNoise& noise,
     // representative's (the same monotonicity as above); the bands
     // partition W_up (W_low), so the sum is a tighter floor.
     out.stage = 2;
+    const double sd = std::sqrt(predictor.eta_variance);
+    const GaussianBands& g = gaussian_bands();
+    const auto every = [](int) { return true; };
     if (!(out.p_high_floor > needed)) {
-      const double floor = band_floor(
-          true, w.high_band, [&](int b) { return w.high_rep[b]; }, [&](int b) { return w.high_seen[b]; }, noise, t,
-          observed);
+      const double floor =
+          rule.bracket
+              ? band_floor(true, g.probability, [&](int b) { return predictor.eta_mean + g.edge[b] * sd; }, every, noise,
+                           t, observed)
+              : band_floor(true, w.high_band, [&](int b) { return w.high_rep[b]; },
+                           [&](int b) { return w.high_seen[b]; }, noise, t, observed);
       if (std::isfinite(floor)) out.p_high_floor = std::max(out.p_high_floor, floor);
     }
     if (!(out.p_low_floor > needed)) {
-      const double floor = band_floor(
-          false, w.low_band, [&](int b) { return w.low_rep[b]; }, [&](int b) { return w.low_seen[b]; }, noise, t,
-          observed);
+      const double floor =
+          rule.bracket
+              ? band_floor(false, g.probability, [&](int b) { return predictor.eta_mean - g.edge[b] * sd; }, every,
+                           noise, t, observed)
+              : band_floor(false, w.low_band, [&](int b) { return w.low_rep[b]; },
+                           [&](int b) { return w.low_seen[b]; }, noise, t, observed);
       if (std::isfinite(floor)) out.p_low_floor = std::max(out.p_low_floor, floor);
     }
     out.settled = out.p_high_floor > needed && out.p_low_floor > needed;

@@ -53,6 +53,7 @@
 #pragma once
 
 #include <cstdint>
+#include <limits>
 
 #include "bounds/predictive.h"
 
@@ -80,8 +81,14 @@ struct ScreenOutcome {
 // Preconditions as quadrature_bounds (evaluate checks them). `draws` is 0
 // for quadrature, the number of draws for simulate. `wanted`: stage 0
 // settles a record only when both floors exceed it (0: alpha alone).
+// grid_limit and z_alpha as choose_rule's (mixture.h). Under a bracketing
+// rule the quadrature floors are the true mixture's (weight 1/2 each side,
+// stage 2 on the Gaussian bands as for simulate), which lie below the
+// bracketing mixtures' tails that the full search reports.
 ScreenOutcome screen_record(const Predictor& predictor, const CountNoise& noise, std::int64_t observed,
-                            int nodes, double alpha, int draws, double wanted = 0);
+                            int nodes, double alpha, int draws, double wanted = 0,
+                            int grid_limit = kDefaultGridNodeLimit,
+                            double z_alpha = std::numeric_limits<double>::quiet_NaN());
 
 // exp(-K KL(alpha || p)) for p > alpha: the Chernoff bound on a binomial
 // fraction of K trials with success probability p falling to alpha or below.

@@ -192,7 +192,7 @@ class Reader {
 
   void read_alert(const toml::table& t, std::string_view prefix, AlertSpec& a) {
     check_keys(t, prefix, {"alpha", "direction", "method", "draws", "seed", "quadrature_nodes", "screen",
-                           "episode_close_records"});
+                           "episode_close_records", "grid_node_limit"});
     if (const toml::node* n = t.get("alpha")) {
       std::optional<double> v = n->value<double>();
       if (!v || !(*v > 0 && *v < 0.5)) fail(*n, join(prefix, "alpha"), "must be a number between 0 and 0.5");
@@ -213,6 +213,11 @@ class Reader {
     if (auto* v = get<toml::value<int64_t>>(t, "quadrature_nodes", prefix, "an integer")) {
       if (v->get() < 2 || v->get() > 200) fail(*v, join(prefix, "quadrature_nodes"), "must be between 2 and 200");
       else a.quadrature_nodes = static_cast<int>(v->get());
+    }
+    if (auto* v = get<toml::value<int64_t>>(t, "grid_node_limit", prefix, "an integer")) {
+      if (v->get() != 0 && (v->get() < 64 || v->get() > 16384))
+        fail(*v, join(prefix, "grid_node_limit"), "must be 0 or between 64 and 16384");
+      else a.grid_node_limit = static_cast<int>(v->get());
     }
     if (auto* v = get<toml::value<int64_t>>(t, "seed", prefix, "an integer")) {
       if (v->get() < 0) fail(*v, join(prefix, "seed"), "must be non-negative");

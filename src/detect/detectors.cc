@@ -34,6 +34,7 @@ LowThreshold low_threshold(const Observation& obs, const Prediction& p, const Se
   o.method = s.alert.method;
   o.draws = s.alert.draws;
   o.quadrature_nodes = s.alert.quadrature_nodes;
+  o.grid_node_limit = s.alert.grid_node_limit;
   o.alpha = s.detect.low_run_quantile;
   // A stream of its own (seed + 1) so the bound's draws are not reused.
   auto eval = [&](std::int64_t y) {

@@ -71,6 +71,7 @@ struct AlertSpec {
   bounds::Method method = bounds::Method::quadrature;
   int draws = 10000;                    // simulate: draws per record
   int quadrature_nodes = 48;            // quadrature: Gauss-Hermite nodes
+  int grid_node_limit = bounds::kDefaultGridNodeLimit;  // quadrature: bounds::Options::grid_node_limit (0 or 64-16384)
   std::uint64_t seed = 1;               // simulate: base seed of the reproducible draws
   bool screen = false;                  // settle unremarkable records before the full bounds (bounds::Options::screen)
   // Judged records in a row without an alert in an open episode's direction

@@ -29,7 +29,8 @@ SeriesModel::SeriesModel(std::string id, const SeriesSettings& settings)
       scales_(2, window_rows(settings.model)),
       season_values_(static_cast<std::size_t>(season_column_count(settings.model)), window_rows(settings.model)),
       seasons_per_row_(season_column_count(settings.model)),
-      fit_weights_(1, window_rows(settings.model)) {}
+      fit_weights_(1, window_rows(settings.model)),
+      quantile_(bounds::upper_quantile(settings.alert.alpha)) {}
 
 std::optional<std::string> SeriesModel::missing_covariate(const Observation& obs) const {
   for (const std::string& name : settings_->model.covariates)
@@ -102,7 +103,9 @@ Prediction SeriesModel::predict(const Observation& obs, bool allow_screen) const
   options.method = a.method;
   options.draws = a.draws;
   options.quadrature_nodes = a.quadrature_nodes;
+  options.grid_node_limit = a.grid_node_limit;
   options.alpha = a.alpha;
+  options.quantile = quantile_;
   options.screen = allow_screen && a.screen;
   // The engine refits on doubt unless both floors exceed this (engine.h):
   // the screen's cheapest floors must not make it refit more often.

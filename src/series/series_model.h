@@ -243,6 +243,9 @@ class SeriesModel {
   // oldest fit_weights_.size() records entered them with.
   WindowStep step_;
   Ring<double> fit_weights_;
+  // alert.alpha's normal quantile, computed once (bounds::AlphaQuantile):
+  // settings_ outlives the model and never changes under it.
+  bounds::AlphaQuantile quantile_;
   Correction step_correction_;
   double step_gamma_ = 1;
   double step_phi_start_ = 1;  // Pearson's statistic / (n - p) when the sums started

@@ -146,5 +146,75 @@ TEST_CASE("quadrature at narrow noise agrees with simulation at a million draws"
   }
 }
 
+TEST_CASE("past the node limit the grid brackets the tails from above, within the stated excess", "[bounds]") {
+  // Reference: reference_sf above (Boost.Math's adaptive Gauss-Kronrod),
+  // independent of the grid. The bracketing mixtures' tails must lie above
+  // the reference (the verdict can only be conservative) and below it times
+  // 1 + bracket_excess (mixture.h), both up to 1e-9 relative for the
+  // reference's own error; the bounds move accordingly.
+  const double alpha = 1e-3;
+  int bracketed = 0;
+  for (const int limit : {256, 512}) {
+    for (const Case& c : narrow_noise_cases()) {
+      const Predictor predictor{std::log(c.mean), c.variance};
+      const QuadratureRule rule = choose_rule(predictor, c.noise, 48, alpha, limit);
+      if (!rule.bracket) continue;
+      ++bracketed;
+      CHECK(rule.grid_nodes == limit);
+      const double excess = bracket_excess(rule);
+      REQUIRE(excess < 2);
+      const Bounds b = quadrature_bounds(predictor, c.noise, 0, 48, alpha, limit);
+      INFO("family " << glm::to_string(c.noise.family) << " mean " << c.mean << " eta_variance " << c.variance
+                     << " limit " << limit << " excess " << excess << " bounds [" << b.lower << ", " << b.upper << "]");
+      // Upper: S(upper) <= alpha truly; S(upper - 1) above alpha / (1 + excess).
+      CHECK(reference_sf(c, b.upper) <= alpha * (1 + 1e-9));
+      CHECK(reference_sf(c, b.upper - 1) * (1 + excess) > alpha * (1 - 1e-9));
+      for (const std::int64_t k : {b.upper, b.upper + 1, b.upper + b.upper / 20, (b.lower + b.upper) / 2}) {
+        const Bounds at = quadrature_bounds(predictor, c.noise, k, 48, alpha, limit);
+        const double want = reference_sf(c, k - 1);  // P(Y >= k)
+        INFO("observed " << k << " p_high " << at.p_high << " reference " << want);
+        CHECK(at.p_high >= want * (1 - 1e-9) - 1e-15);
+        CHECK(at.p_high <= want * (1 + excess) * (1 + 1e-9) + 1e-15);
+      }
+      // Lower: P(Y <= lower - 1) <= alpha truly; P(Y <= lower) above alpha / (1 + excess).
+      CHECK(1 - reference_sf(c, b.lower - 1) <= alpha * (1 + 1e-9) + 1e-15);
+      CHECK((1 - reference_sf(c, b.lower)) * (1 + excess) > alpha * (1 - 1e-9) - 1e-15);
+      for (const std::int64_t k : {b.lower, std::max<std::int64_t>(b.lower - 1, 0), b.lower / 2}) {
+        const Bounds at = quadrature_bounds(predictor, c.noise, k, 48, alpha, limit);
+        const double want = 1 - reference_sf(c, k);  // P(Y <= k)
+        INFO("observed " << k << " p_low " << at.p_low << " reference " << want);
+        CHECK(at.p_low >= want * (1 - 1e-9) - 1e-15);
+        CHECK(at.p_low <= want * (1 + excess) * (1 + 1e-9) + 1e-15);
+      }
+    }
+  }
+  CHECK(bracketed >= 6);  // most cases wanted more than either limit, so the checks bite
+}
+
+TEST_CASE("a poorly identified fit gets the node limit, with the documented excess", "[bounds]") {
+  // From the wide model extrapolated 30 days (docs/benchmarks.md, "Judging on
+  // a poorly identified fit"): it wanted 16384 nodes.
+  const CountNoise quasi{Family::quasipoisson, Link::log, 1.4, 0};
+  const Predictor wide{5.141, 1.580 * 1.580};
+  const QuadratureRule capped = choose_rule(wide, quasi, 48, 1e-3);
+  CHECK(capped.bracket);
+  CHECK(capped.grid_nodes == kDefaultGridNodeLimit);
+  // P(Z > H) = 1e-16 alpha (H = 9.01 at alpha 1e-3).
+  CHECK(0.5 * std::erfc(capped.half_width / std::sqrt(2.0)) == Approx(1e-19).epsilon(1e-6));
+  CHECK(bracket_excess(capped) < 0.087);  // the 8.6% stated in predictive.h
+  const QuadratureRule old = choose_rule(wide, quasi, 48, 1e-3, 0);
+  CHECK_FALSE(old.bracket);
+  CHECK(old.grid_nodes > 4 * kDefaultGridNodeLimit);
+  // A runaway extrapolation (eta 12.6 +- 5.3 sd, means clamped at 1e9 for
+  // much of the grid): finite, ordered bounds, and a count near the series'
+  // own level is no alert.
+  const Predictor runaway{12.648, 5.319 * 5.319};
+  const Bounds b = evaluate(runaway, quasi, 7, Options{}, nullptr);
+  CHECK(b.lower == 0);
+  CHECK(b.upper > 1000);
+  CHECK(b.p_high > 0.5);
+  CHECK(b.p_low > 1e-3);
+}
+
 }  // namespace
 }  // namespace tallyd::bounds

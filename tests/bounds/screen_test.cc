@@ -71,6 +71,38 @@ TEST_CASE("screen: settles only records the full quadrature judges unremarkable,
   CHECK(flagged > 20);
 }
 
+TEST_CASE("screen: under the bracketing grid, floors lie below the bracketed p-values", "[bounds][screen]") {
+  // The bracketed p-values are checked against Boost.Math's adaptive
+  // Gauss-Kronrod in quadrature_test.cc; the screen must stay below them.
+  const double alpha = 0.001;
+  const int limit = 256;
+  int settled = 0, flagged = 0, checked = 0;
+  for (const CountNoise& noise : {CountNoise{Family::poisson, Link::log, 1, 0},
+                                  CountNoise{Family::quasipoisson, Link::log, 2.5, 0}}) {
+    for (double mean : {60.0, 2000.0}) {
+      const Predictor p{std::log(mean), 0.5};
+      REQUIRE(choose_rule(p, noise, 48, alpha, limit).bracket);
+      for (double factor : {0.0, 0.01, 0.05, 0.2, 0.5, 1.0, 2.0, 5.0, 20.0, 60.0, 200.0}) {
+        const auto y = static_cast<std::int64_t>(std::floor(factor * mean));
+        const ScreenOutcome s = screen_record(p, noise, y, 48, alpha, 0, 0, limit);
+        const Bounds full = quadrature_bounds(p, noise, y, 48, alpha, limit);
+        ++checked;
+        CHECK(s.expected == full.expected);
+        CHECK(s.p_high_floor <= full.p_high * (1 + 1e-9));
+        CHECK(s.p_low_floor <= full.p_low * (1 + 1e-9));
+        const bool alert = full.p_high <= alpha || full.p_low <= alpha;
+        if (alert) ++flagged;
+        if (s.settled) {
+          ++settled;
+          CHECK_FALSE(alert);
+        }
+      }
+    }
+  }
+  CHECK(settled > checked / 4);
+  CHECK(flagged >= 4);
+}
+
 TEST_CASE("screen: the Chernoff bound lies above the exact binomial lower tail", "[bounds][screen]") {
   // Reference: Boost.Math binomial_distribution; the bound is Hoeffding
   // (1963), Theorem 1, for the lower tail of a binomial fraction.
