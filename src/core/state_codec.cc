@@ -113,6 +113,22 @@ std::uint64_t StateReader::leb128() {
   if (pos_ < text_.size() && static_cast<std::uint8_t>(text_[pos_]) < 0x80)
     return static_cast<std::uint8_t>(text_[pos_++]);
   std::uint64_t v = 0;
+  if (text_.size() - pos_ >= 10) {
+    // The longest value is in the buffer: no refill check per byte (a
+    // history's time steps take 3 bytes; this loop ran ~47 million times in
+    // a restore of 100,000 series). The same value and failure as below.
+    const auto* at = reinterpret_cast<const std::uint8_t*>(text_.data()) + pos_;
+    for (int i = 0; i < 10; ++i) {
+      v |= static_cast<std::uint64_t>(at[i] & 0x7f) << (7 * i);
+      if ((at[i] & 0x80) == 0) {
+        pos_ += static_cast<std::size_t>(i) + 1;
+        return v;
+      }
+    }
+    pos_ += 10;
+    fail("integer longer than 10 bytes");
+    return 0;
+  }
   for (int shift = 0; shift < 64; shift += 7) {
     if (!have(1)) {
       fail("unexpected end of state");

@@ -1,7 +1,9 @@
 // scale * (L L')^-1 from a lower-triangular Cholesky factor L, for the small
 // systems of a series model: the covariance of the refit's fast path
 // (glm/small_fit.h) and of the steps between refits (series/window_step.h).
-// Header-only; no allocation once `out` is p x p.
+// Header-only; no allocation once `out` is p x p. `out` is an
+// Eigen::MatrixXd (resized to p x p) or a reference to or map of a p x p
+// matrix (series/model_fit.h), written element by element either way.
 #pragma once
 
 #include <Eigen/Dense>
@@ -15,8 +17,8 @@ namespace tallyd::glm {
 // k >= b >= a, which no write of that loop has touched: the writes are at
 // rows a' <= a, above the diagonal except for (a, a), written last and read
 // only by its own sum); mirrored at the end.
-template <class Lower>
-void scaled_inverse_from_factor(const Lower& lower, Eigen::Index p, double scale, Eigen::MatrixXd& out) {
+template <class Lower, class Out>
+void scaled_inverse_from_factor(const Lower& lower, Eigen::Index p, double scale, Out& out) {
   if (out.rows() != p || out.cols() != p) out.resize(p, p);
   for (Eigen::Index c = 0; c < p; ++c) {
     for (Eigen::Index i = c; i < p; ++i) {

@@ -49,20 +49,11 @@ enum class FitStatus {
 
 std::string_view to_string(FitStatus s);
 
-struct FitResult {
+// Everything of a fit but its arrays (a series model keeps its arrays in a
+// block of its own: series/model_fit.h).
+struct FitFigures {
   FitStatus status = FitStatus::failed;
   std::string note;  // why it failed, or informational ("column(s) 3 aliased and dropped ...")
-
-  // Length p (columns of X), also on failure. Aliased columns have
-  // coefficient 0 and zero rows/columns in `covariance`, and are flagged in
-  // `aliased`. When status is failed, coefficients and covariance are all 0
-  // and every column is flagged aliased: nothing was estimated.
-  Eigen::VectorXd coefficients;
-  std::vector<bool> aliased;
-  // Covariance of the estimates: inverse Fisher information (X'WX)^{-1}
-  // with W the working weights at the fitted means, multiplied by
-  // `dispersion` for quasi-Poisson (as R's summary.glm does).
-  Eigen::MatrixXd covariance;
 
   double deviance = 0;       // residual deviance (for negbin at the fitted theta); NaN when failed
   double null_deviance = 0;  // with has_intercept: deviance of the column-0(+offset)-only fit, same
@@ -82,6 +73,19 @@ struct FitResult {
   int df_residual = 0;       // n - rank
   int n = 0;                 // records used: positive prior weight and valid values
   int iterations = 0;        // IRLS iterations (summed over theta steps for negbin)
+};
+
+struct FitResult : FitFigures {
+  // Length p (columns of X), also on failure. Aliased columns have
+  // coefficient 0 and zero rows/columns in `covariance`, and are flagged in
+  // `aliased`. When status is failed, coefficients and covariance are all 0
+  // and every column is flagged aliased: nothing was estimated.
+  Eigen::VectorXd coefficients;
+  std::vector<bool> aliased;
+  // Covariance of the estimates: inverse Fisher information (X'WX)^{-1}
+  // with W the working weights at the fitted means, multiplied by
+  // `dispersion` for quasi-Poisson (as R's summary.glm does).
+  Eigen::MatrixXd covariance;
 };
 
 // Fits y ~ X with `offset` (added to the linear predictor, e.g. log exposure)

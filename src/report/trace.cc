@@ -44,17 +44,17 @@ std::vector<SeriesTrace> TraceCollector::finish(const Engine& engine) {
       if (!m->has_fit()) {
         trace.fit_status = "not fitted";
       } else {
-        const glm::FitResult& f = m->fit();
+        const ModelFit& f = m->fit();
         trace.fit_status = f.status == glm::FitStatus::ok ? "ok"
                            : f.status == glm::FitStatus::failed ? "failed: " + f.note
                                                                 : "not converged: " + f.note;
         const std::vector<std::string> names = coefficient_names(s.model);
-        for (Eigen::Index i = 0; i < f.coefficients.size(); ++i) {
+        for (Eigen::Index i = 0; i < f.coefficients().size(); ++i) {
           CoefficientRow row;
           row.name = i < static_cast<Eigen::Index>(names.size()) ? names[i] : "x" + std::to_string(i);
-          row.estimate = f.coefficients[i];
-          const bool aliased = static_cast<std::size_t>(i) < f.aliased.size() && f.aliased[i];
-          row.std_error = aliased ? std::numeric_limits<double>::quiet_NaN() : std::sqrt(f.covariance(i, i));
+          row.estimate = f.coefficients()(i);
+          const bool aliased = static_cast<std::size_t>(i) < f.aliased_count() && f.aliased(static_cast<std::size_t>(i));
+          row.std_error = aliased ? std::numeric_limits<double>::quiet_NaN() : std::sqrt(f.covariance()(i, i));
           trace.coefficients.push_back(row);
         }
         trace.dispersion = f.dispersion;

@@ -88,9 +88,9 @@ Prediction SeriesModel::predict(const Observation& obs, bool allow_screen) const
   const double offset = row_for(obs.time, obs.exposure, cov, x);
 
   Prediction out;
-  const double linear = x.dot(fit_.coefficients);
+  const double linear = x.dot(fit_.coefficients());
   Eigen::Map<Eigen::VectorXd, Eigen::Aligned16> cx(cx_data, p_);
-  cx.noalias() = fit_.covariance * x.transpose();
+  cx.noalias() = fit_.covariance() * x.transpose();
   out.predictor.eta_mean = linear + offset;
   out.predictor.eta_variance = std::max(0.0, x.dot(cx));
   out.noise.family = settings_->model.family;
@@ -239,7 +239,9 @@ void SeriesModel::refit() {
   glm::FitOptions options = fit_options();
   options.null_deviance = false;  // not needed for judging; fit_report() asks for it
   if (has_fit_ && std::isfinite(fit_.theta)) options.start_theta = fit_.theta;
-  const Eigen::VectorXd* start = has_fit_ ? &fit_.coefficients : nullptr;
+  Eigen::VectorXd start_values;
+  if (has_fit_) start_values = fit_.coefficients();
+  const Eigen::VectorXd* start = has_fit_ ? &start_values : nullptr;
 
   // Warm-started fits of a narrow log-link design take the one-pass path
   // (glm/small_fit.h), which leaves every hard case to fit_glm.
@@ -283,7 +285,7 @@ void SeriesModel::refit() {
   }
   const bool converged = result.status == glm::FitStatus::ok;
   if (converged || (result.status == glm::FitStatus::not_converged && !has_fit_)) {
-    fit_ = std::move(result);
+    fit_.assign(result);
     has_fit_ = true;
   }
   // Steps start only from a converged fit; otherwise the next record refits.
@@ -348,7 +350,7 @@ void SeriesModel::release_workspace() {
   weights_.resize(0);
 }
 
-double SeriesModel::outlying_residual(const glm::FitResult& fit, double y, double mu, double d, double prior,
+double SeriesModel::outlying_residual(const glm::FitFigures& fit, double y, double mu, double d, double prior,
                                      double quadratic) const {
   if (!(mu > 1e-12)) return 0;
   const double threshold = settings_->model.reweight_threshold;

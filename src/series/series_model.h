@@ -21,6 +21,7 @@
 #include "core/observation.h"
 #include "glm/fit.h"
 #include "series/design.h"
+#include "series/model_fit.h"
 #include "series/model_spec.h"
 #include "series/ring.h"
 #include "series/window_step.h"
@@ -83,7 +84,9 @@ class SeriesModel {
   TimePoint first_time_in_window() const { return time_at(0); }
   std::size_t history_size() const { return records_.size(); }
   std::size_t min_history() const;  // effective: max(spec min_history, #coefficients + 2)
-  const glm::FitResult& fit() const { return fit_; }
+  // The fit it judges with: glm::FitResult's figures, its arrays through
+  // maps (series/model_fit.h); fit().result() is a glm::FitResult copy.
+  const ModelFit& fit() const { return fit_; }
   bool has_fit() const { return has_fit_; }
   const std::string& last_fit_note() const { return last_fit_note_; }
   glm::FitStatus last_fit_status() const { return last_fit_status_; }
@@ -166,7 +169,7 @@ class SeriesModel {
   // exceeds model.reweight_threshold (the record is then down-weighted by
   // its square), else 0. `d` is d mu / d eta at the record, `quadratic` its
   // x' Cov x. Shared by resistant_weights and the steps' step_weight.
-  double outlying_residual(const glm::FitResult& fit, double y, double mu, double d, double prior,
+  double outlying_residual(const glm::FitFigures& fit, double y, double mu, double d, double prior,
                            double quadratic) const;
   // `gamma`, when not null, receives the factor all weights were scaled by.
   // The linear predictors and means at fit's coefficients are read from
@@ -231,7 +234,8 @@ class SeriesModel {
   // the ring's far end was a cache miss per record.
   TimePoint newest_{};
 
-  glm::FitResult fit_;
+  // Its arrays in one block; a restore places it in its mapping.
+  ModelFit fit_;
   bool has_fit_ = false;
   glm::FitStatus last_fit_status_ = glm::FitStatus::failed;
   std::string last_fit_note_ = "not fitted yet";

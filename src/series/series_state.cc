@@ -29,18 +29,20 @@ std::int64_t advance(std::int64_t from, std::int64_t by) {
   return static_cast<std::int64_t>(static_cast<std::uint64_t>(from) + static_cast<std::uint64_t>(by));
 }
 
-void save_fit(StateWriter& w, const glm::FitResult& f) {
+void save_fit(StateWriter& w, const ModelFit& f) {
   w.tag("fit");
   w.u64(static_cast<std::uint64_t>(f.status));
   w.str(f.note);
-  w.u64(static_cast<std::uint64_t>(f.coefficients.size()));
-  for (Eigen::Index i = 0; i < f.coefficients.size(); ++i) w.f64(f.coefficients(i));
-  w.u64(f.aliased.size());
-  for (bool a : f.aliased) w.boolean(a);
-  w.u64(static_cast<std::uint64_t>(f.covariance.rows()));
-  w.u64(static_cast<std::uint64_t>(f.covariance.cols()));
-  for (Eigen::Index j = 0; j < f.covariance.cols(); ++j)
-    for (Eigen::Index i = 0; i < f.covariance.rows(); ++i) w.f64(f.covariance(i, j));
+  const ModelFit::ConstVectorMap coefficients = f.coefficients();
+  w.u64(static_cast<std::uint64_t>(coefficients.size()));
+  for (Eigen::Index i = 0; i < coefficients.size(); ++i) w.f64(coefficients(i));
+  w.u64(f.aliased_count());
+  for (std::size_t i = 0; i < f.aliased_count(); ++i) w.boolean(f.aliased(i));
+  const ModelFit::ConstMatrixMap covariance = f.covariance();
+  w.u64(static_cast<std::uint64_t>(covariance.rows()));
+  w.u64(static_cast<std::uint64_t>(covariance.cols()));
+  for (Eigen::Index j = 0; j < covariance.cols(); ++j)
+    for (Eigen::Index i = 0; i < covariance.rows(); ++i) w.f64(covariance(i, j));
   for (double d : {f.deviance, f.null_deviance, f.log_likelihood, f.aic, f.dispersion, f.theta, f.theta_std_error})
     w.f64(d);
   w.boolean(f.theta_at_limit);
@@ -56,7 +58,8 @@ glm::FitStatus status_from(StateReader& r, std::uint64_t v) {
 // Sizes come from a file: bound them before allocating.
 constexpr std::uint64_t kMaxSaved = 100'000'000;
 
-void load_fit(StateReader& r, glm::FitResult& f, int p) {
+// Returns true when the fit's arrays were placed in `bulk`.
+bool load_fit(StateReader& r, ModelFit& f, int p, BulkMemory* bulk) {
   r.expect("fit");
   f.status = status_from(r, r.u64());
   f.note = r.str();
@@ -64,20 +67,33 @@ void load_fit(StateReader& r, glm::FitResult& f, int p) {
   // An empty fit (never fitted) has no coefficients, whatever the model.
   if (!r.failed() && nc != 0 && nc != static_cast<std::uint64_t>(p))
     r.fail(fmt::format("fit has {} coefficients, the configured model has {}", nc, p));
-  if (r.failed()) return;
-  f.coefficients.resize(static_cast<Eigen::Index>(nc));
-  for (Eigen::Index i = 0; i < f.coefficients.size(); ++i) f.coefficients(i) = r.f64();
+  if (r.failed()) return false;
+  // The arrays in one block of the shapes every saved fit has (nc flags, an
+  // nc x nc covariance); the shapes are read after the values they follow,
+  // so a fit saved with others gets a block of its own below.
+  const auto count = static_cast<Eigen::Index>(nc);
+  bool placed = f.shape(count, nc, count, count, bulk);
+  ModelFit::VectorMap coefficients = f.coefficients();
+  for (Eigen::Index i = 0; i < count; ++i) coefficients(i) = r.f64();
   const std::uint64_t na = r.u64();
-  if (na > kMaxSaved) r.fail("aliased flags too many");
-  if (r.failed()) return;
-  f.aliased.assign(na, false);
-  for (std::size_t i = 0; i < na; ++i) f.aliased[i] = r.boolean();
+  // A flag takes at least a byte of the state.
+  if (na > kMaxSaved || na > r.remaining()) r.fail("aliased flags too many");
+  if (r.failed()) return placed;
+  if (na != nc) {
+    f.shape(count, na, count, count, nullptr);
+    placed = false;
+  }
+  for (std::size_t i = 0; i < na; ++i) f.set_aliased(i, r.boolean());
   const std::uint64_t rows = r.u64(), cols = r.u64();
   if (rows > 10000 || cols > 10000) r.fail("covariance too large");
-  if (r.failed()) return;
-  f.covariance.resize(static_cast<Eigen::Index>(rows), static_cast<Eigen::Index>(cols));
-  for (Eigen::Index j = 0; j < f.covariance.cols(); ++j)
-    for (Eigen::Index i = 0; i < f.covariance.rows(); ++i) f.covariance(i, j) = r.f64();
+  if (r.failed()) return placed;
+  if (rows != nc || cols != nc) {
+    f.shape(count, na, static_cast<Eigen::Index>(rows), static_cast<Eigen::Index>(cols), nullptr);
+    placed = false;
+  }
+  ModelFit::MatrixMap covariance = f.covariance();
+  for (Eigen::Index j = 0; j < covariance.cols(); ++j)
+    for (Eigen::Index i = 0; i < covariance.rows(); ++i) covariance(i, j) = r.f64();
   f.deviance = r.f64();
   f.null_deviance = r.f64();
   f.log_likelihood = r.f64();
@@ -90,6 +106,7 @@ void load_fit(StateReader& r, glm::FitResult& f, int p) {
   f.df_residual = static_cast<int>(r.i64());
   f.n = static_cast<int>(r.i64());
   f.iterations = static_cast<int>(r.i64());
+  return placed;
 }
 
 }  // namespace
@@ -211,6 +228,8 @@ void SeriesModel::load_state(StateReader& r) {
   // state (binary: flags, time step, count; text: more), so a damaged count
   // cannot reserve more than the state could hold.
   const std::size_t rows = static_cast<std::size_t>(std::min<std::uint64_t>(n, r.remaining() / 3));
+  // Nothing of the old state may point into a mapping once bulk_ lets go of it.
+  fit_ = ModelFit{};
   bulk_.reset();
   const std::shared_ptr<BulkMemory> bulk = rows > 0 ? r.memory() : nullptr;
   // A ring's block from the bulk mapping when it can hold it, else its own.
@@ -259,7 +278,9 @@ void SeriesModel::load_state(StateReader& r) {
     }
   }
   if (!records_.empty()) newest_ = time_at(records_.size() - 1);
-  load_fit(r, fit_, p_);
+  // The fit's arrays beside the history in the mapping (series/model_fit.h).
+  const std::shared_ptr<BulkMemory>& memory = r.memory();
+  if (load_fit(r, fit_, p_, memory.get())) bulk_ = memory;
 }
 
 }  // namespace tallyd

@@ -29,7 +29,7 @@ void SeriesModel::start_steps(const Eigen::VectorXd& fit_weights, const Correcti
                               const glm::SmallFit& small) {
   step_correction_ = correction;
   step_gamma_ = gamma;
-  Eigen::VectorXd beta_star = fit_.coefficients;
+  Eigen::VectorXd beta_star = fit_.coefficients();
   if (beta_star.size() > 0) beta_star(0) += correction.mean_shift;  // the resistant fit's own intercept
   step_.reset(beta_star, settings_->model.family, fit_.theta);
   step_x_.resize(p_);
@@ -54,10 +54,10 @@ double SeriesModel::step_weight(double offset, double y, double prior) {
   const ModelSpec& spec = settings_->model;
   if (!spec.reweight || !(prior > 0)) return prior;
   // As resistant_weights, against the published fit.
-  const double eta = step_x_.dot(fit_.coefficients) + offset;
+  const double eta = step_x_.dot(fit_.coefficients()) + offset;
   const double mu = std::exp(eta);
   if (!std::isfinite(mu)) return step_gamma_ * prior;
-  step_cx_.noalias() = fit_.covariance * step_x_.transpose();
+  step_cx_.noalias() = fit_.covariance() * step_x_.transpose();
   const double quadratic = step_x_.dot(step_cx_);
   const double s = outlying_residual(fit_, y, mu, mu, prior, quadratic);  // log link: d mu / d eta = mu
   return step_gamma_ * (s > 0 ? prior / (s * s) : prior);
@@ -99,15 +99,15 @@ void SeriesModel::step_forward() {
       return;
     }
   }
-  fit_.coefficients = step_beta_;
-  if (fit_.coefficients.size() > 0) fit_.coefficients(0) -= step_correction_.mean_shift;
+  fit_.coefficients() = step_beta_;
+  if (fit_.coefficients().size() > 0) fit_.coefficients()(0) -= step_correction_.mean_shift;
   fit_.n = static_cast<int>(n);
   fit_.df_residual = static_cast<int>(n) - p_;
   if (settings_->model.family == glm::Family::quasipoisson && fit_.df_residual > 0) {
     fit_.dispersion = step_.pearson() / fit_.df_residual / step_correction_.dispersion_divisor;
-    step_.inverse(fit_.dispersion, fit_.covariance);
+    step_.inverse(fit_.dispersion, fit_.covariance());
   } else {
-    step_.inverse(1.0, fit_.covariance);
+    step_.inverse(1.0, fit_.covariance());
   }
 }
 

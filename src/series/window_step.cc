@@ -101,7 +101,7 @@ bool WindowStep::solve(Eigen::VectorXd& beta) {
   return true;
 }
 
-void WindowStep::inverse(double scale, Eigen::MatrixXd& out) const {
+void WindowStep::inverse(double scale, Eigen::Ref<Eigen::MatrixXd> out) const {
   glm::scaled_inverse_from_factor([this](Eigen::Index i, Eigen::Index j) { return factor_(i, j); }, factor_.rows(),
                                   scale, out);
 }

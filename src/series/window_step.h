@@ -75,9 +75,10 @@ class WindowStep {
   // definite (too few records, an aliased column), leaving `beta` as it was.
   // Called once per record: no allocation once `beta` has p elements.
   bool solve(Eigen::VectorXd& beta);
-  // scale * A^-1 into `out` (resized to p x p), from the factor of the last
-  // solve() that returned true. No allocation once `out` is p x p.
-  void inverse(double scale, Eigen::MatrixXd& out) const;
+  // scale * A^-1 into `out`, from the factor of the last solve() that
+  // returned true. Precondition: `out` is p x p (a matrix or a map of one,
+  // e.g. a model's fit, series/model_fit.h). No allocation.
+  void inverse(double scale, Eigen::Ref<Eigen::MatrixXd> out) const;
 
   // (beta - beta*)' A (beta - beta*): how far `beta` is from beta*, squared,
   // in the metric of the information (standard errors, for a unit dispersion).

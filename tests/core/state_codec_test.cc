@@ -140,3 +140,41 @@ TEST_CASE("binary layout: cut short, a wrong tag or an endless integer is an err
   long_int.u64();
   CHECK(long_int.failed());
 }
+
+// The reader decodes an integer with ten or more bytes left in its buffer
+// in one loop without refill checks, and byte by byte nearer the end: both
+// must read the same values, and refuse the same 11-byte integer.
+TEST_CASE("binary layout: an integer reads the same far from and near the end of the state", "[state]") {
+  const std::uint64_t values[] = {0, 1, 127, 128, 172800, 1ull << 35, 1ull << 63, 18446744073709551615ull};
+  for (std::uint64_t v : values) {
+    INFO("value " << v);
+    StateWriter alone(StateLayout::binary);
+    alone.u64(v);
+    StateReader near_end(alone.text(), StateLayout::binary);
+    CHECK(near_end.u64() == v);
+    CHECK_FALSE(near_end.failed());
+    StateWriter padded(StateLayout::binary);
+    padded.u64(v);
+    for (int i = 0; i < 10; ++i) padded.u64(0);
+    StateReader far(padded.text(), StateLayout::binary);
+    CHECK(far.u64() == v);
+    CHECK(far.u64() == 0);
+    CHECK_FALSE(far.failed());
+  }
+  // Nine continuation bytes and a last one: 2^63 in ten bytes, read either way.
+  std::string ten(9, static_cast<char>(0x80));
+  ten += '\x01';
+  StateReader ten_alone(ten, StateLayout::binary);
+  CHECK(ten_alone.u64() == 1ull << 63);
+  const std::string ten_then_zeros = ten + std::string(10, '\0');  // the reader views its text
+  StateReader ten_padded(ten_then_zeros, StateLayout::binary);
+  CHECK(ten_padded.u64() == 1ull << 63);
+  CHECK_FALSE(ten_padded.failed());
+  // Ten continuation bytes: an error however much follows.
+  for (std::size_t after : {0, 1, 20}) {
+    const std::string text = std::string(10, static_cast<char>(0x80)) + std::string(after, '\0');
+    StateReader endless(text, StateLayout::binary);
+    endless.u64();
+    CHECK(endless.failed());
+  }
+}

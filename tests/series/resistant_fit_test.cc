@@ -27,7 +27,7 @@ double fitted_mean(bool reweight) {
     o.count = rng.poisson(week >= 114 ? 50 : 10);
     model.learn(o);
   }
-  return std::exp(model.fit().coefficients(0));
+  return std::exp(model.fit().coefficients()(0));
 }
 
 }  // namespace
@@ -71,7 +71,7 @@ TEST_CASE("guard band: the newest records stay out of the fit that judges the ne
   a.learn(at(12, 95));
   REQUIRE(a.ready());
   // a's fit uses the first 11 records only, as b's does.
-  CHECK(a.fit().coefficients(0) == Approx(b.fit().coefficients(0)).epsilon(1e-9));
+  CHECK(a.fit().coefficients()(0) == Approx(b.fit().coefficients()(0)).epsilon(1e-9));
 }
 
 namespace {
@@ -98,7 +98,7 @@ glm::FitResult window_fit(std::uint64_t seed, int outbreaks, const ModelSpec& mo
     model.learn(o);
   }
   REQUIRE(model.has_fit());
-  return model.fit();
+  return model.fit().result();
 }
 
 // The fit's quasi-Poisson dispersion.

@@ -1,6 +1,8 @@
 #include "series/series_model.h"
 
+#include <bit>
 #include <cmath>
+#include <cstdint>
 #include <string>
 
 #include <catch2/catch.hpp>
@@ -147,8 +149,8 @@ TEST_CASE("a restored model refits exactly like the original", "[series]") {
     }
     REQUIRE(original.has_fit());
     REQUIRE(restored.fits_done() == original.fits_done());
-    for (Eigen::Index j = 0; j < original.fit().coefficients.size(); ++j) {
-      CHECK(restored.fit().coefficients(j) == original.fit().coefficients(j));
+    for (Eigen::Index j = 0; j < original.fit().coefficients().size(); ++j) {
+      CHECK(restored.fit().coefficients()(j) == original.fit().coefficients()(j));
     }
     CHECK(restored.fit().dispersion == original.fit().dispersion);
   }
@@ -181,6 +183,16 @@ TEST_CASE("a model restored into offered memory grows out of it and refits exact
     restored.load_state(r);
     REQUIRE_FALSE(r.failed());
     CHECK(r.memory()->used() >= 40 * (8 + 8));  // records and covariates went into the offered block
+    // and so did the fit's arrays (series/model_fit.h): 7 coefficients
+    // (padded to 8), a 7 x 7 covariance and 7 flags in a double.
+    CHECK(r.memory()->used() >= 40 * (8 + 8) + (8 + 7 * 7 + 1) * sizeof(double));
+    // Judged right after the restore, a record gets the original's bounds, bit for bit.
+    REQUIRE(original.ready());
+    const Prediction before = original.predict(with_rain[40]);
+    const Prediction after = restored.predict(with_rain[40]);
+    CHECK(std::bit_cast<std::uint64_t>(after.predictor.eta_mean) == std::bit_cast<std::uint64_t>(before.predictor.eta_mean));
+    CHECK(std::bit_cast<std::uint64_t>(after.predictor.eta_variance) ==
+          std::bit_cast<std::uint64_t>(before.predictor.eta_variance));
     SeriesModel copy_of_original("s", settings);
     StateReader again(w.text(), layout);
     copy_of_original.load_state(again);  // without an offer: the heap
@@ -196,9 +208,9 @@ TEST_CASE("a model restored into offered memory grows out of it and refits exact
     CHECK(restored.history_size() == 70);
     REQUIRE(restored.fits_done() == reference.fits_done());
     REQUIRE(copy_of_original.fits_done() == reference.fits_done());
-    for (Eigen::Index j = 0; j < reference.fit().coefficients.size(); ++j) {
-      CHECK(restored.fit().coefficients(j) == reference.fit().coefficients(j));
-      CHECK(copy_of_original.fit().coefficients(j) == reference.fit().coefficients(j));
+    for (Eigen::Index j = 0; j < reference.fit().coefficients().size(); ++j) {
+      CHECK(restored.fit().coefficients()(j) == reference.fit().coefficients()(j));
+      CHECK(copy_of_original.fit().coefficients()(j) == reference.fit().coefficients()(j));
     }
     CHECK(restored.fit().dispersion == reference.fit().dispersion);
     CHECK(restored.first_time_in_window() == reference.first_time_in_window());
@@ -238,8 +250,8 @@ TEST_CASE("exposure and weight rows start at the first value other than 1 and ro
         }
         REQUIRE(reference.has_fit());
         REQUIRE(restored.fits_done() == reference.fits_done());
-        for (Eigen::Index j = 0; j < reference.fit().coefficients.size(); ++j)
-          CHECK(restored.fit().coefficients(j) == reference.fit().coefficients(j));
+        for (Eigen::Index j = 0; j < reference.fit().coefficients().size(); ++j)
+          CHECK(restored.fit().coefficients()(j) == reference.fit().coefficients()(j));
         CHECK(restored.fit().dispersion == reference.fit().dispersion);
         StateWriter end_reference(layout), end_restored(layout);
         reference.save_state(end_reference);
@@ -256,7 +268,7 @@ TEST_CASE("exposure and weight rows start at the first value other than 1 and ro
     unweighted.learn(records[i]);
   }
   REQUIRE(weighted.has_fit());
-  CHECK(weighted.fit().coefficients(0) != unweighted.fit().coefficients(0));
+  CHECK(weighted.fit().coefficients()(0) != unweighted.fit().coefficients()(0));
 }
 
 // A record is kept in 8 bytes (seconds after the first record, count) when
@@ -294,8 +306,8 @@ TEST_CASE("a record whose count or time does not fit 32 bits is kept in full and
         reference.learn(next);
         restored.learn(next);
         REQUIRE(restored.fits_done() == reference.fits_done());
-        for (Eigen::Index j = 0; j < reference.fit().coefficients.size(); ++j)
-          CHECK(restored.fit().coefficients(j) == reference.fit().coefficients(j));
+        for (Eigen::Index j = 0; j < reference.fit().coefficients().size(); ++j)
+          CHECK(restored.fit().coefficients()(j) == reference.fit().coefficients()(j));
       }
     }
   }

@@ -60,10 +60,10 @@ TEST_CASE("WindowStep from the converged fit of the same window does not move it
   SeriesModel stepped("s", with_steps);
   for (const Observation& o : daily_series(150, 3)) stepped.learn(o);
   stepped.refit();
-  const glm::FitResult& a = model.fit();
-  const glm::FitResult& b = stepped.fit();
-  for (Eigen::Index j = 0; j < a.coefficients.size(); ++j)
-    CHECK(b.coefficients(j) == Approx(a.coefficients(j)).epsilon(1e-9).margin(1e-12));
+  const ModelFit& a = model.fit();
+  const ModelFit& b = stepped.fit();
+  for (Eigen::Index j = 0; j < a.coefficients().size(); ++j)
+    CHECK(b.coefficients()(j) == Approx(a.coefficients()(j)).epsilon(1e-9).margin(1e-12));
 }
 
 // What judging reads is the next record's linear predictor: compare it, in
@@ -173,7 +173,7 @@ TEST_CASE("WindowStep solve and inverse agree with Eigen's LLT on the same sums"
   REQUIRE(llt.info() == Eigen::Success);
   const Eigen::VectorXd want = beta_star + llt.solve(g);
   for (int j = 0; j < p; ++j) CHECK(beta(j) == Approx(want(j)).epsilon(1e-10).margin(1e-12));
-  Eigen::MatrixXd inverse;
+  Eigen::MatrixXd inverse(p, p);
   step.inverse(2.5, inverse);
   const Eigen::MatrixXd want_inverse = 2.5 * llt.solve(Eigen::MatrixXd::Identity(p, p));
   for (int a = 0; a < p; ++a) {
