@@ -352,10 +352,8 @@ Bounds quadrature_bounds(const Predictor& predictor, const CountNoise& noise, st
   b.expected = m.expected;
   b.lower = low.body_k;
   b.upper = high.tail_k;
-  const double f_at_lower = low.body_value;     // > alpha
   const double f_below_lower = low.tail_value;  // <= alpha (0 at lower == 0)
   const double s_at_upper = high.tail_value;    // <= alpha
-  const double s_below_upper = high.body_value; // > alpha (1 at upper == 0)
 
   // p-values: F(observed) and S(observed - 1).
   if (observed < 0) {
@@ -394,15 +392,7 @@ Bounds quadrature_bounds(const Predictor& predictor, const CountNoise& noise, st
     if (observed == 0) b.p_high = 1;
   }
 
-  // The true CDF is monotone, so F(observed) and S(observed - 1) lie on the
-  // same side of alpha as the values computed at the bounds; this only
-  // undoes rounding that would otherwise break the contract.
-  if (observed > b.upper) b.p_high = std::min(b.p_high, s_at_upper);
-  else b.p_high = std::max(b.p_high, s_below_upper);
-  if (observed < b.lower) b.p_low = std::min(b.p_low, f_below_lower);
-  else b.p_low = std::max(b.p_low, f_at_lower);
-  b.p_low = std::clamp(b.p_low, 0.0, 1.0);
-  b.p_high = std::clamp(b.p_high, 0.0, 1.0);
+  keep_sides(low, high, observed, b);
   return b;
 }
 

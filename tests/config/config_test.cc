@@ -274,3 +274,21 @@ alert.episode_close_records = 2
     CHECK_THAT(e.error().message, Catch::Contains(expected));
   }
 }
+
+TEST_CASE("alert.grid_node_limit: default, override, the earlier rule, errors", "[config]") {
+  auto empty = parse_config("", "empty.toml");
+  REQUIRE(empty.ok());
+  CHECK(empty.value().settings.defaults.alert.grid_node_limit == bounds::kDefaultGridNodeLimit);
+  auto r = parse_config("[alert]\ngrid_node_limit = 0\n[[series]]\nmatch = \"big-*\"\nalert.grid_node_limit = 8192\n",
+                        "monitor.toml");
+  REQUIRE(r.ok());
+  CHECK(r.value().settings.defaults.alert.grid_node_limit == 0);
+  CHECK(r.value().settings.for_series("big-1").alert.grid_node_limit == 8192);
+  for (const char* text : {"[alert]\ngrid_node_limit = 63\n", "[alert]\ngrid_node_limit = 16385\n"}) {
+    auto e = parse_config(text, "monitor.toml");
+    INFO(text);
+    REQUIRE_FALSE(e.ok());
+    CHECK_THAT(e.error().message,
+               Catch::Contains("monitor.toml:2: alert.grid_node_limit: must be 0 or between 64 and 16384"));
+  }
+}
