@@ -43,6 +43,7 @@
 // quadrature of the same predictor (screen on, so a record it settles shows
 // floors). Collecting them costs a copy of each prediction inside the timed loop.
 #include <algorithm>
+#include <array>
 #include <chrono>
 #include <cmath>
 #include <cstdio>
@@ -241,6 +242,8 @@ struct Row {
   double busy_seconds = 0;     // sharded: seconds the workers spent judging, summed
   double offered_seconds = 0;  // sharded: seconds in batches times workers
   std::uint64_t fits = 0;      // single: GLM fits done (a refit with the resistant second fit counts two)
+  std::array<std::uint64_t, kRefitCauses> fits_by_cause{};  // single: the same fits by the refit's cause
+  std::uint64_t recentred = 0;  // single: step sums taken again at the step's coefficients
   std::vector<Prediction> predictions;  // with --pvalues-out: per record (not judged: eta_mean NaN)
 };
 
@@ -257,7 +260,11 @@ Row run_single(const std::vector<Observation>& feed, const SettingsTable& settin
   }
   row.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
   row.counters = engine.counters();
-  for (const auto& [id, model] : engine.series()) row.fits += model->fits_done();
+  for (const auto& [id, model] : engine.series()) {
+    row.fits += model->fits_done();
+    for (std::size_t c = 0; c < kRefitCauses; ++c) row.fits_by_cause[c] += model->fits_for(static_cast<RefitCause>(c));
+    row.recentred += model->steps_recentred();
+  }
   return row;
 }
 
@@ -337,6 +344,17 @@ void print_row(const char* method, const char* screen, std::size_t every, int wo
               static_cast<unsigned long long>(r.counters.alerts_high + r.counters.alerts_low), diff.c_str());
 }
 
+// Where a single row's fits came from, per record of the feed.
+void print_fit_causes(const Row& r, std::size_t records) {
+  static constexpr const char* kNames[kRefitCauses] = {"asked", "first", "warm-up", "cadence",
+                                                       "no sums", "step limit", "doubt"};
+  const double n = static_cast<double>(records);
+  std::printf("  fits per record %.4f:", static_cast<double>(r.fits) / n);
+  for (std::size_t c = 0; c < kRefitCauses; ++c)
+    if (r.fits_by_cause[c] > 0) std::printf(" %s %.4f", kNames[c], static_cast<double>(r.fits_by_cause[c]) / n);
+  std::printf("; recentred %.4f\n", static_cast<double>(r.recentred) / n);
+}
+
 // With --verdicts-against: how many records' verdicts differ from the file's
 // run, and how many alerts each has; fits per record of this run.
 void report_against(const Args& a, const Row& r, std::size_t records) {
@@ -394,6 +412,7 @@ int main(int argc, char** argv) {
         }
       }
       print_row(name.c_str(), screen ? "on" : "off", a.refit_every, 1, feed.size(), one, *base);
+      print_fit_causes(one, feed.size());
       report_against(a, one, feed.size());
       if (a.workers > 1) {
         const std::size_t batch = static_cast<std::size_t>(std::max(a.batch > 0 ? a.batch : a.series, 1));
@@ -416,6 +435,7 @@ int main(int argc, char** argv) {
         const SettingsTable settings = bench_settings(a, method, screens.back(), every, doubt);
         const Row r = run_single(feed, settings);
         print_row(name.c_str(), screens.back() ? "on" : "off", every, 1, feed.size(), r, *base);
+        print_fit_causes(r, feed.size());
         report_against(a, r, feed.size());
         std::printf("  refit every %zu%s: %zu of %llu judged records (%.4f%%) differ from refit every %zu;"
                     " %.3f fits per record (%.3f there)\n",

@@ -109,7 +109,7 @@ IngestResult Engine::ingest(const Observation& obs) {
       const double clear = s.model.doubt_factor * s.alert.alpha;
       // A deferred record (bounds::Bounds) is one the draws left for this.
       if (b.deferred || !(b.p_high > clear && b.p_low > clear)) {
-        model.refit();
+        model.refit(RefitCause::doubt);
         r.prediction = model.predict(obs, screen);
       }
     }

@@ -156,11 +156,19 @@ void SeriesModel::learn(const Observation& obs, double weight) {
   ++since_refit_;
   // A restored series has no step sums: it refits at its first record.
   const bool steps = steps_on();
-  if (records_.size() >= min_history() + settings_->model.guard_records &&
-      (since_refit_ >= settings_->model.refit_every || !has_fit_ ||
-       records_.size() < settings_->model.cadence_from || (steps && !step_.active()))) {
-    refit();
-  } else if (steps && step_.active()) {
+  const ModelSpec& spec = settings_->model;
+  if (records_.size() >= min_history() + spec.guard_records) {
+    RefitCause cause = RefitCause::asked;
+    if (!has_fit_) cause = RefitCause::first;
+    else if (records_.size() < spec.cadence_from) cause = RefitCause::warm_up;
+    else if (since_refit_ >= spec.refit_every) cause = RefitCause::cadence;
+    else if (steps && !step_.active()) cause = RefitCause::no_sums;
+    if (cause != RefitCause::asked) {
+      refit(cause);
+      return;
+    }
+  }
+  if (steps && step_.active()) {
     step_forward();
   }
 }
@@ -227,8 +235,9 @@ glm::FitOptions SeriesModel::fit_options() const {
   return options;
 }
 
-void SeriesModel::refit() {
+void SeriesModel::refit(RefitCause cause) {
   since_refit_ = 0;
+  const std::uint64_t fits_before = fits_done_;
   // The guard band: the newest guard_records records stay out of the fit
   // that judges the next record, so an outbreak's first weeks cannot pull
   // the baseline up before they have been judged a few more times.
@@ -292,6 +301,7 @@ void SeriesModel::refit() {
   if (steps && converged) start_steps(fit_weights, correction, gamma, small);
   else step_.clear();
   release_workspace();
+  fits_by_cause_[static_cast<std::size_t>(cause)] += static_cast<std::uint32_t>(fits_done_ - fits_before);
 }
 
 SeriesModel::Correction SeriesModel::correct_resistant_fit(glm::FitResult& result,

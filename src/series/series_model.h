@@ -9,6 +9,7 @@
 // Not thread-safe; owned by one engine.
 #pragma once
 
+#include <array>
 #include <cstdint>
 #include <memory>
 #include <optional>
@@ -34,6 +35,19 @@ class SmallFit;
 class BulkMemory;
 class StateWriter;
 class StateReader;
+
+// Why a full refit ran: the refit cadence's causes (model.refit_every,
+// cadence_from, step_between_refits) and the engine's refit on doubt.
+enum class RefitCause : std::uint8_t {
+  asked,       // refit() called with no cause (tests, reports)
+  first,       // the series had no fit yet (its first judged record, or a failed fit)
+  warm_up,     // the window held fewer than model.cadence_from records
+  cadence,     // model.refit_every records since the last refit
+  no_sums,     // steps on but no step sums (after a restore or an unconverged fit)
+  step_limit,  // a step could not stand (series/window_step.h: strayed after recentring, or dispersion grew)
+  doubt,       // model.refit_on_doubt: the engine refitted before judging a record
+};
+inline constexpr std::size_t kRefitCauses = 7;
 
 // What the model says about one record before seeing it.
 struct Prediction {
@@ -72,8 +86,9 @@ class SeriesModel {
   // Precondition: obs.time is later than every record learned so far.
   void learn(const Observation& obs, double weight = 1.0);
 
-  // Refits now on the whole current window, whatever the cadence.
-  void refit();
+  // Refits now on the whole current window, whatever the cadence; `cause`
+  // is only counted (fits_for).
+  void refit(RefitCause cause = RefitCause::asked);
 
   // A fresh fit of the current window from a cold start, with the null
   // deviance, for reports; does not change the model.
@@ -91,6 +106,9 @@ class SeriesModel {
   const std::string& last_fit_note() const { return last_fit_note_; }
   glm::FitStatus last_fit_status() const { return last_fit_status_; }
   std::uint64_t fits_done() const { return fits_done_; }
+  // GLM fits (as fits_done counts them) of refits for `cause`, since
+  // construction or restore (not saved).
+  std::uint64_t fits_for(RefitCause cause) const { return fits_by_cause_[static_cast<std::size_t>(cause)]; }
   // Times the step's sums were taken again at its own coefficients
   // (step_forward, series/window_step.h) since construction or restore.
   std::uint64_t steps_recentred() const { return steps_recentred_; }
@@ -241,6 +259,7 @@ class SeriesModel {
   std::string last_fit_note_ = "not fitted yet";
   std::uint64_t fits_done_ = 0;
   std::uint64_t steps_recentred_ = 0;
+  std::array<std::uint32_t, kRefitCauses> fits_by_cause_{};
 
   // model.step_between_refits: the sums (empty when off, and after a
   // restore until the next full refit) and the weight each of the window's

@@ -74,7 +74,7 @@ void SeriesModel::step_forward() {
     *fit_weights_.push_back() = w;
   }
   if (!step_.solve(step_beta_)) {
-    refit();  // no step from these sums (an aliased column): the full fit decides
+    refit(RefitCause::step_limit);  // no step from these sums (an aliased column): the full fit decides
     return;
   }
   const std::size_t n = step_.rows();
@@ -85,7 +85,7 @@ void SeriesModel::step_forward() {
   const auto far = [&] { return !(step_.distance2(step_beta_) <= kMaxStepDistance * kMaxStepDistance * scale); };
   // On a window that no longer fits beta*: refit fully.
   if (!(phi_now() <= kMaxStepDispersionGrowth * step_phi_start_)) {
-    refit();
+    refit(RefitCause::step_limit);
     return;
   }
   if (far()) {
@@ -95,7 +95,7 @@ void SeriesModel::step_forward() {
     // too strays, or its window no longer fits.
     recentre_steps();
     if (!step_.solve(step_beta_) || far() || !(phi_now() <= kMaxStepDispersionGrowth * step_phi_start_)) {
-      refit();
+      refit(RefitCause::step_limit);
       return;
     }
   }
