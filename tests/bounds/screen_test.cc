@@ -31,6 +31,33 @@ TEST_CASE("screen: with no parameter uncertainty the floors are the exact Poisso
   }
 }
 
+namespace {
+
+struct ScreenTally {
+  int settled = 0, flagged = 0, checked = 0;
+};
+
+// One record through the screen and through the full quadrature of the same
+// mixture: the floors must lie below the full p-values, and the screen must
+// never settle a record those flag.
+void check_screen_below_full(const Predictor& p, const CountNoise& noise, std::int64_t y, double alpha,
+                             int grid_limit, ScreenTally& tally) {
+  const ScreenOutcome s = screen_record(p, noise, y, 48, alpha, 0, 0, grid_limit);
+  const Bounds full = quadrature_bounds(p, noise, y, 48, alpha, grid_limit);
+  ++tally.checked;
+  CHECK(s.expected == full.expected);  // the same mixture, summed the same way
+  CHECK(s.p_high_floor <= full.p_high * (1 + 1e-9));
+  CHECK(s.p_low_floor <= full.p_low * (1 + 1e-9));
+  const bool alert = full.p_high <= alpha || full.p_low <= alpha;
+  if (alert) ++tally.flagged;
+  if (s.settled) {
+    ++tally.settled;
+    CHECK_FALSE(alert);
+  }
+}
+
+}  // namespace
+
 TEST_CASE("screen: settles only records the full quadrature judges unremarkable, and floors lie below its p-values",
           "[bounds][screen]") {
   // The full quadrature p-values are themselves checked against Boost.Math's
@@ -42,7 +69,7 @@ TEST_CASE("screen: settles only records the full quadrature judges unremarkable,
   noises.push_back(CountNoise{Family::quasipoisson, Link::log, 2.5, 0});
   noises.push_back(CountNoise{Family::negbin, Link::log, 1, 4.0});
   noises.push_back(CountNoise{Family::poisson, Link::sqrt, 1, 0});
-  int settled = 0, flagged = 0, checked = 0;
+  ScreenTally tally;
   for (const CountNoise& noise : noises) {
     for (double mean : {0.5, 4.0, 30.0, 400.0}) {
       for (double variance : {0.0, 0.01, 0.2}) {
@@ -50,25 +77,14 @@ TEST_CASE("screen: settles only records the full quadrature judges unremarkable,
         const Predictor p{eta, noise.link == Link::sqrt ? variance * mean : variance};
         for (double factor : {0.0, 0.2, 0.5, 0.8, 1.0, 1.3, 2.0, 3.0, 5.0}) {
           const auto y = static_cast<std::int64_t>(std::floor(factor * mean));
-          const ScreenOutcome s = screen_record(p, noise, y, 48, alpha, 0);
-          const Bounds full = quadrature_bounds(p, noise, y, 48, alpha);
-          ++checked;
-          CHECK(s.expected == full.expected);  // the same mixture, summed the same way
-          CHECK(s.p_high_floor <= full.p_high * (1 + 1e-9));
-          CHECK(s.p_low_floor <= full.p_low * (1 + 1e-9));
-          const bool alert = full.p_high <= alpha || full.p_low <= alpha;
-          if (alert) ++flagged;
-          if (s.settled) {
-            ++settled;
-            CHECK_FALSE(alert);
-          }
+          check_screen_below_full(p, noise, y, alpha, kDefaultGridNodeLimit, tally);
         }
       }
     }
   }
   // The grid covers both kinds of record, so the checks above bite.
-  CHECK(settled > checked / 3);
-  CHECK(flagged > 20);
+  CHECK(tally.settled > tally.checked / 3);
+  CHECK(tally.flagged > 20);
 }
 
 TEST_CASE("screen: under the bracketing grid, floors lie below the bracketed p-values", "[bounds][screen]") {
@@ -76,7 +92,7 @@ TEST_CASE("screen: under the bracketing grid, floors lie below the bracketed p-v
   // Gauss-Kronrod in quadrature_test.cc; the screen must stay below them.
   const double alpha = 0.001;
   const int limit = 256;
-  int settled = 0, flagged = 0, checked = 0;
+  ScreenTally tally;
   for (const CountNoise& noise : {CountNoise{Family::poisson, Link::log, 1, 0},
                                   CountNoise{Family::quasipoisson, Link::log, 2.5, 0}}) {
     for (double mean : {60.0, 2000.0}) {
@@ -84,23 +100,12 @@ TEST_CASE("screen: under the bracketing grid, floors lie below the bracketed p-v
       REQUIRE(choose_rule(p, noise, 48, alpha, limit).bracket);
       for (double factor : {0.0, 0.01, 0.05, 0.2, 0.5, 1.0, 2.0, 5.0, 20.0, 60.0, 200.0}) {
         const auto y = static_cast<std::int64_t>(std::floor(factor * mean));
-        const ScreenOutcome s = screen_record(p, noise, y, 48, alpha, 0, 0, limit);
-        const Bounds full = quadrature_bounds(p, noise, y, 48, alpha, limit);
-        ++checked;
-        CHECK(s.expected == full.expected);
-        CHECK(s.p_high_floor <= full.p_high * (1 + 1e-9));
-        CHECK(s.p_low_floor <= full.p_low * (1 + 1e-9));
-        const bool alert = full.p_high <= alpha || full.p_low <= alpha;
-        if (alert) ++flagged;
-        if (s.settled) {
-          ++settled;
-          CHECK_FALSE(alert);
-        }
+        check_screen_below_full(p, noise, y, alpha, limit, tally);
       }
     }
   }
-  CHECK(settled > checked / 4);
-  CHECK(flagged >= 4);
+  CHECK(tally.settled > tally.checked / 4);
+  CHECK(tally.flagged >= 4);
 }
 
 TEST_CASE("screen: the Chernoff bound lies above the exact binomial lower tail", "[bounds][screen]") {
