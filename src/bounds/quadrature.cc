@@ -311,19 +311,36 @@ void keep_sides(const Boundary& low, const Boundary& high, std::int64_t observed
   b.p_high = std::clamp(b.p_high, 0.0, 1.0);
 }
 
+// Both bounds' searches from guesses on m: the lower bound's on low_m and
+// the upper's on high_m (m itself, or under the bracketing rule each side's
+// own mixture). `b` holds m's expected count and the two bounds.
+struct Searched {
+  Boundary low;
+  Boundary high;
+  Bounds b;
+};
+
+Searched search_bounds(const Mixture& m, const Mixture& low_m, const Mixture& high_m, const Predictor& predictor,
+                       const CountNoise& noise, double alpha, double z_alpha) {
+  const Guesses guess = guess_bounds(m, predictor, noise, z_alpha);
+  Searched s{find_boundary(low_m, alpha, +1, guess.lower, guess.stride),
+             find_boundary(high_m, alpha, -1, guess.upper, guess.stride), Bounds{}};
+  s.b.expected = m.expected;
+  s.b.lower = s.low.body_k;
+  s.b.upper = s.high.tail_k;
+  return s;
+}
+
 // The bracketing rule: each side searched and judged on its own mixture.
 Bounds bracketed_bounds(const Predictor& predictor, const CountNoise& noise, std::int64_t observed, double alpha,
                         double z_alpha, const QuadratureRule& rule, const Mixture& m) {
   Mixture low_m;
   Mixture high_m;
   bracket_mixtures(rule, m, low_m, high_m);
-  const Guesses guess = guess_bounds(m, predictor, noise, z_alpha);
-  const Boundary low = find_boundary(low_m, alpha, +1, guess.lower, guess.stride);
-  const Boundary high = find_boundary(high_m, alpha, -1, guess.upper, guess.stride);
-  Bounds b;
-  b.expected = m.expected;
-  b.lower = low.body_k;
-  b.upper = high.tail_k;
+  Searched s = search_bounds(m, low_m, high_m, predictor, noise, alpha, z_alpha);
+  const Boundary& low = s.low;
+  const Boundary& high = s.high;
+  Bounds& b = s.b;
   if (observed < 0) {
     b.p_low = 0;
     b.p_high = 1;
@@ -344,14 +361,10 @@ Bounds quadrature_bounds(const Predictor& predictor, const CountNoise& noise, st
   Mixture m;
   build_mixture(predictor, noise, rule, m);
   if (rule.bracket) return bracketed_bounds(predictor, noise, observed, alpha, z_alpha, rule, m);
-  const Guesses guess = guess_bounds(m, predictor, noise, z_alpha);
-
-  const Boundary low = find_boundary(m, alpha, +1, guess.lower, guess.stride);
-  const Boundary high = find_boundary(m, alpha, -1, guess.upper, guess.stride);
-  Bounds b;
-  b.expected = m.expected;
-  b.lower = low.body_k;
-  b.upper = high.tail_k;
+  Searched s = search_bounds(m, m, m, predictor, noise, alpha, z_alpha);
+  const Boundary& low = s.low;
+  const Boundary& high = s.high;
+  Bounds& b = s.b;
   const double f_below_lower = low.tail_value;  // <= alpha (0 at lower == 0)
   const double s_at_upper = high.tail_value;    // <= alpha
 
