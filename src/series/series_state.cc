@@ -234,7 +234,7 @@ void SeriesModel::load_state(StateReader& r) {
   // A ring's block from the bulk mapping when it can hold it, else its own.
   const auto place = [&](auto& ring) {
     using Row = std::remove_pointer_t<decltype(ring.row(0))>;
-    if (void* block = bulk ? bulk->take(rows * ring.width() * sizeof(Row)) : nullptr) {
+    if (void* block = bulk ? bulk->take(rows * ring.width() * sizeof(Row), alignof(Row)) : nullptr) {
       ring.adopt(static_cast<Row*>(block), rows);
       bulk_ = bulk;
     } else {
