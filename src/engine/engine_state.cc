@@ -126,8 +126,9 @@ void Engine::load_state(StateReader& r) {
   silence_.load_state(r);
   r.expect("series_count");
   const std::uint64_t n = r.u64();
-  series_.clear();
-  detectors_.clear();
+  // The maps' nodes in the restore's mapping, when the reader offers one.
+  series_ = SeriesMap(BulkAllocator<SeriesMap::value_type>(r.memory()));
+  detectors_ = DetectorMap(BulkAllocator<DetectorMap::value_type>(r.memory()));
   for (std::uint64_t i = 0; i < n && !r.failed(); ++i) {
     r.expect("series");
     std::string id = r.str();
