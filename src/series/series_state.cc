@@ -199,8 +199,7 @@ void SeriesModel::load_state(StateReader& r) {
   r.expect("model");
   // The step sums (model.step_between_refits) are not saved: a restored
   // series refits at its first new record and starts them again.
-  step_.clear();
-  fit_weights_.clear();
+  steps_.reset();
   const bool has_origin = r.boolean();
   const std::int64_t origin = r.i64();
   origin_.reset();
