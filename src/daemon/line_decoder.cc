@@ -7,14 +7,14 @@
 namespace tallyd::daemon {
 
 LineDecoder::LineDecoder(std::string source_name, std::optional<Format> format)
-    : name_(std::move(source_name)), forced_(format) {
+    : where_{std::move(source_name), 0}, forced_(format) {
   if (forced_ == Format::jsonl) parser_ = RecordParser::jsonl();
 }
 
 Result<LineDecoder> LineDecoder::resumed(std::string source_name, Format format, std::string_view header) {
   LineDecoder d(std::move(source_name), format);
   if (format == Format::csv) {
-    Result<RecordParser> p = RecordParser::csv(header, SourcePos{d.name_, 0});
+    Result<RecordParser> p = RecordParser::csv(header, SourcePos{d.where_.source, 0});
     if (!p) return p.error();
     d.parser_ = std::move(p).value();
     d.header_ = std::string(header);
@@ -25,7 +25,8 @@ Result<LineDecoder> LineDecoder::resumed(std::string source_name, Format format,
 ParseOutcome LineDecoder::decode(const Split& split, std::size_t max_line_bytes) {
   std::string_view text = split.text;
   if (split.number == 1 && text.substr(0, 3) == "\xEF\xBB\xBF") text.remove_prefix(3);
-  const SourcePos where{name_, split.number};
+  where_.line = split.number;
+  const SourcePos& where = where_;
   if (split.kind == SplitKind::too_long) {
     const std::string_view t = trim_blanks(text);
     if (!t.empty() && t.front() == '#') return ParseOutcome::skip();

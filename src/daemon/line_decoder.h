@@ -37,7 +37,9 @@ class LineDecoder {
   bool settled() const { return parser_.has_value(); }
 
  private:
-  std::string name_;
+  // The source's name with the line number of the split being decoded: kept,
+  // so that a long peer or file name is not copied for every line.
+  SourcePos where_;
   std::optional<Format> forced_;
   std::optional<RecordParser> parser_;
   std::string header_;

@@ -84,7 +84,10 @@ bool load_fit(StateReader& r, ModelFit& f, int p, BulkMemory* bulk) {
   }
   for (std::size_t i = 0; i < na; ++i) f.set_aliased(i, r.boolean());
   const std::uint64_t rows = r.u64(), cols = r.u64();
-  if (rows > 10000 || cols > 10000) r.fail("covariance too large");
+  // Every value takes at least a byte of the state: a damaged size cannot
+  // ask for more memory than the rest of the file could fill.
+  if (rows > 10000 || cols > 10000 || rows * cols > r.remaining())
+    r.fail(fmt::format("covariance of {} x {} is more than the rest of the state holds", rows, cols));
   if (r.failed()) return placed;
   if (rows != nc || cols != nc) {
     f.shape(count, na, static_cast<Eigen::Index>(rows), static_cast<Eigen::Index>(cols), nullptr);

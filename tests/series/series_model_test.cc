@@ -379,3 +379,41 @@ TEST_CASE("a binary history reads the same record by record and from the buffer"
     CHECK_THAT(error, Catch::Contains(fmt::format("at byte {}:", at + 1)));
   }
 }
+
+// A damaged checkpoint whose fit claims a covariance far larger than the
+// rest of its state is refused before anything of that size is allocated.
+TEST_CASE("a saved fit claiming a covariance larger than its state is refused by name", "[series]") {
+  std::vector<Observation> records = seasonal_series();
+  SeriesSettings settings;
+  settings.model.family = glm::Family::quasipoisson;
+  settings.model.trend = true;
+  SeriesModel reference("s", settings);
+  for (std::size_t i = 0; i < 60; ++i) reference.learn(records[i]);
+  REQUIRE(reference.has_fit());
+  StateWriter w;
+  reference.save_state(w);
+  const std::string saved = w.text();
+  // The fit line: "fit <status> <n>:<note> <nc> <nc values> <na> <na flags> <rows> <cols> ...".
+  std::size_t at = saved.find("\nfit ");
+  REQUIRE(at != std::string::npos);
+  at += 5;
+  auto token = [&saved, &at]() {
+    const std::size_t end = saved.find(' ', at);
+    std::string t = saved.substr(at, end - at);
+    at = end + 1;
+    return t;
+  };
+  token();                                          // status
+  const std::size_t colon = saved.find(':', at);    // note, length-prefixed
+  at = colon + 1 + std::stoul(saved.substr(at, colon - at)) + 1;
+  const std::size_t nc = std::stoul(token());
+  for (std::size_t i = 0; i < nc; ++i) token();
+  const std::size_t na = std::stoul(token());
+  for (std::size_t i = 0; i < na; ++i) token();
+  const std::string damaged = saved.substr(0, at) + "9000 9000 1 2 3\n";
+  SeriesModel restored("s", settings);
+  StateReader r(damaged);
+  restored.load_state(r);
+  REQUIRE(r.failed());
+  CHECK(r.error().find("covariance of 9000 x 9000") != std::string::npos);
+}
