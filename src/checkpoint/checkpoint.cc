@@ -95,13 +95,16 @@ Result<Restored> restore_body(StateReader& body, std::size_t body_size, Head hea
   // prefaulted in chunks (core/bulk_memory.h): page faults were most of a
   // restore. A record takes at least 3 bytes of the body and 8 to 40 in
   // memory (series_model.h; the bound allows 32), a covariate and a value
-  // of a fit 8 in both, a fit's flag 1 in both, a model its size and the
-  // alignment of its pieces (the head's count, checked against the body
-  // below; a count beyond the body's bytes cannot be true); the bound only
+  // of a fit 8 in both, a fit's flag 1 in both, a model its size, its two
+  // map nodes (engine.h; under 256 bytes) and the alignment of its pieces
+  // (the head's count, checked against the body below; a count beyond the
+  // body's bytes cannot be true); the bound only
   // reserves address space, and what is not used is given back at once.
+  // Its pages are prefaulted on a thread of its own while this one decodes
+  // (core/bulk_memory.h): fresh memory costs about as much as decoding.
   const std::size_t models = static_cast<std::size_t>(std::min<std::uint64_t>(head.series, body_size));
-  const std::shared_ptr<BulkMemory> histories =
-      BulkMemory::create(body_size / 3 * 32 + body_size + models * (sizeof(SeriesModel) + 4 * 64));
+  const std::shared_ptr<BulkMemory> histories = BulkMemory::create(
+      body_size / 3 * 32 + body_size + models * (sizeof(SeriesModel) + 256 + 4 * 64), /*prefault_ahead=*/true);
   body.offer_memory(histories);
   Restored out;
   out.marks = std::move(head.marks);

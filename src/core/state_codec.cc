@@ -22,10 +22,6 @@ std::uint64_t zigzag(std::int64_t v) {
   return (static_cast<std::uint64_t>(v) << 1) ^ static_cast<std::uint64_t>(v >> 63);
 }
 
-std::int64_t unzigzag(std::uint64_t v) {
-  return static_cast<std::int64_t>(v >> 1) ^ -static_cast<std::int64_t>(v & 1);
-}
-
 }  // namespace
 
 std::uint8_t tag_byte(std::string_view word) {
@@ -91,9 +87,11 @@ StateReader::StateReader(StateSource& source, std::size_t total, std::size_t pie
 bool StateReader::fill(std::size_t n) {
   if (source_ == nullptr || n > remaining()) return false;
   // Keep the unread bytes, move them to the front, read after them.
+  // Moved before the buffer grows: text_ views the buffer, and growing it
+  // may move it.
   const std::size_t unread = text_.size() - pos_;
-  if (n > buffer_.size()) buffer_.resize(n);
   if (unread != 0 && pos_ != 0) std::memmove(buffer_.data(), text_.data() + pos_, unread);
+  if (n > buffer_.size()) buffer_.resize(n);
   base_ += pos_;
   pos_ = 0;
   std::size_t have = unread;
@@ -117,13 +115,10 @@ std::uint64_t StateReader::leb128() {
     // The longest value is in the buffer: no refill check per byte (a
     // history's time steps take 3 bytes; this loop ran ~47 million times in
     // a restore of 100,000 series). The same value and failure as below.
-    const auto* at = reinterpret_cast<const std::uint8_t*>(text_.data()) + pos_;
-    for (int i = 0; i < 10; ++i) {
-      v |= static_cast<std::uint64_t>(at[i] & 0x7f) << (7 * i);
-      if ((at[i] & 0x80) == 0) {
-        pos_ += static_cast<std::size_t>(i) + 1;
-        return v;
-      }
+    const std::size_t bytes = decode_leb128(reinterpret_cast<const unsigned char*>(text_.data()) + pos_, v);
+    if (bytes != 0) {
+      pos_ += bytes;
+      return v;
     }
     pos_ += 10;
     fail("integer longer than 10 bytes");
@@ -204,10 +199,9 @@ double StateReader::f64() {
       fail("unexpected end of state");
       return 0;
     }
-    std::uint64_t bits = 0;
-    for (int i = 0; i < 8; ++i) bits |= static_cast<std::uint64_t>(static_cast<std::uint8_t>(text_[pos_ + i])) << (8 * i);
+    const double v = decode_f64(reinterpret_cast<const unsigned char*>(text_.data()) + pos_);
     pos_ += 8;
-    return std::bit_cast<double>(bits);
+    return v;
   }
   std::string_view t = token();
   if (failed()) return 0;
@@ -222,6 +216,31 @@ double StateReader::f64() {
     return 0;
   }
   return std::bit_cast<double>(bits);
+}
+
+void StateReader::f64s(double* into, std::size_t count) {
+  // Runs of at most 512 values (4 KiB), each read from the buffer at once
+  // when it holds them; otherwise value by value, which fails where f64()
+  // would.
+  constexpr std::size_t kRun = 512;
+  while (count > 0) {
+    const std::size_t run = std::min(count, kRun);
+    if (binary_ && !failed() && have(run * 8)) {
+      const auto* at = reinterpret_cast<const unsigned char*>(text_.data()) + pos_;
+      for (std::size_t i = 0; i < run; ++i) into[i] = decode_f64(at + 8 * i);
+      pos_ += run * 8;
+    } else {
+      for (std::size_t i = 0; i < run; ++i) into[i] = f64();
+    }
+    into += run;
+    count -= run;
+  }
+}
+
+std::string_view StateReader::peek(std::size_t n) {
+  if (failed()) return {};
+  have(std::min(n, remaining()));
+  return text_.substr(pos_);
 }
 
 std::string StateReader::str() {

@@ -30,6 +30,8 @@
 // position, and every later read returns a zero value.
 #pragma once
 
+#include <bit>
+#include <cstddef>
 #include <cstdint>
 #include <memory>
 #include <string>
@@ -92,8 +94,20 @@ class StateReader {
   std::uint64_t u64();
   std::int64_t i64();
   double f64();
+  // `count` doubles into `into`: the same values and failure as `count`
+  // calls of f64(), read in runs where the bytes are buffered.
+  void f64s(double* into, std::size_t count);
   std::string str();
   bool boolean();
+
+  // Binary layout, for a decoder of many small values at once (a series'
+  // history, series_state.cc): the unread bytes in the reader's buffer, at
+  // least min(n, remaining()) of them unless the source ends early (a
+  // streaming reader refills for them); empty after a failure. Nothing is
+  // consumed until skip(k) consumes the first k of them (k <= the view's
+  // size), and the view is valid until the next read.
+  std::string_view peek(std::size_t n);
+  void skip(std::size_t k) { pos_ += k; }
 
   // Records a failure (the first one wins), e.g. a value out of range.
   void fail(std::string what);
@@ -130,5 +144,29 @@ class StateReader {
 
 // The byte a binary tag is written as.
 std::uint8_t tag_byte(std::string_view word);
+
+// Decodes one binary unsigned integer (LEB128) at `at`, which must have 10
+// readable bytes: its bytes (1 to 10) and the value into `v`, or 0 when it
+// is longer than 10 bytes. The same value StateReader::u64 reads.
+inline std::size_t decode_leb128(const unsigned char* at, std::uint64_t& v) {
+  v = 0;
+  for (int i = 0; i < 10; ++i) {
+    v |= static_cast<std::uint64_t>(at[i] & 0x7f) << (7 * i);
+    if ((at[i] & 0x80) == 0) return static_cast<std::size_t>(i) + 1;
+  }
+  return 0;
+}
+
+// A binary signed integer from its LEB128 value (zigzag): StateReader::i64's.
+inline std::int64_t unzigzag(std::uint64_t v) {
+  return static_cast<std::int64_t>(v >> 1) ^ -static_cast<std::int64_t>(v & 1);
+}
+
+// A binary double from its 8 little-endian bytes at `at`: StateReader::f64's.
+inline double decode_f64(const unsigned char* at) {
+  std::uint64_t bits = 0;
+  for (int i = 0; i < 8; ++i) bits |= static_cast<std::uint64_t>(at[i]) << (8 * i);
+  return std::bit_cast<double>(bits);
+}
 
 }  // namespace tallyd

@@ -14,6 +14,7 @@
 
 #include "alert/alert.h"
 #include "alert/episode_tracker.h"
+#include "core/bulk_allocator.h"
 #include "core/observation.h"
 #include "core/reject.h"
 #include "detect/detectors.h"
@@ -146,8 +147,15 @@ class Engine {
   // The detector state of a series (nullptr when the series is unknown).
   // Part of the state a checkpoint must keep.
   const detect::DetectorState* detector_state(const std::string& series) const;
+  // The series' models and detector states by id. After a restore their
+  // nodes are in the restore's mapping (core/bulk_allocator.h); otherwise
+  // the heap's.
+  using SeriesMap = std::map<std::string, ModelHandle, std::less<std::string>,
+                             BulkAllocator<std::pair<const std::string, ModelHandle>>>;
+  using DetectorMap = std::map<std::string, detect::DetectorState, std::less<std::string>,
+                               BulkAllocator<std::pair<const std::string, detect::DetectorState>>>;
   // Series in id order.
-  const std::map<std::string, ModelHandle>& series() const { return series_; }
+  const SeriesMap& series() const { return series_; }
 
   // Counters and every series model (engine/engine_state.cc; layout of
   // core/state_codec.h). load_state is for a freshly constructed engine with
@@ -166,8 +174,8 @@ class Engine {
 
   const SettingsTable* settings_;
   EngineLimits limits_;
-  std::map<std::string, ModelHandle> series_;  // heap models, or placed by a restore (series/model_handle.h)
-  std::map<std::string, detect::DetectorState> detectors_;  // per-series detector state, same keys as series_
+  SeriesMap series_;  // heap models, or placed by a restore (series/model_handle.h)
+  DetectorMap detectors_;  // per-series detector state, same keys as series_
   detect::FdrSpec fdr_;
   detect::FdrState fdr_state_;
   detect::LimitTable limits_table_;  // CUSUM limits cached by value (a speed-up, not state)

@@ -126,13 +126,17 @@ void Engine::load_state(StateReader& r) {
   silence_.load_state(r);
   r.expect("series_count");
   const std::uint64_t n = r.u64();
-  series_.clear();
-  detectors_.clear();
+  // The maps' nodes in the restore's mapping, when the reader offers one.
+  series_ = SeriesMap(BulkAllocator<SeriesMap::value_type>(r.memory()));
+  detectors_ = DetectorMap(BulkAllocator<DetectorMap::value_type>(r.memory()));
   for (std::uint64_t i = 0; i < n && !r.failed(); ++i) {
     r.expect("series");
     std::string id = r.str();
     if (r.failed()) break;
-    if (id.empty() || series_.count(id)) {
+    // Saved in id order (the map's): each id then goes after the last one,
+    // with no search. An id out of order is looked up, as it must not repeat.
+    const bool in_order = series_.empty() || series_.rbegin()->first < id;
+    if (id.empty() || (!in_order && series_.count(id))) {
       r.fail(fmt::format("series id '{}' is empty or repeated", id));
       break;
     }
@@ -145,8 +149,13 @@ void Engine::load_state(StateReader& r) {
     d.shift_low = r.f64();
     d.run_log_probability = r.f64();
     d.run_records = static_cast<std::uint32_t>(r.u64());
-    detectors_.emplace(id, d);
-    series_.emplace(std::move(id), std::move(model));
+    if (in_order) {
+      detectors_.emplace_hint(detectors_.end(), id, d);
+      series_.emplace_hint(series_.end(), std::move(id), std::move(model));
+    } else {
+      detectors_.emplace(id, d);
+      series_.emplace(std::move(id), std::move(model));
+    }
   }
   episodes_ = EpisodeTracker{};
   if (!r.failed()) episodes_.load_state(r);

@@ -74,8 +74,8 @@ bool ModelFit::shape(Eigen::Index coefficients, std::size_t aliased, Eigen::Inde
   const std::size_t doubles = block_doubles(coefficients, aliased, rows, cols);
   double* block = nullptr;
   std::unique_ptr<double[]> own;
-  // take() hands out zeroed memory aligned to 64.
-  if (bulk != nullptr && doubles > 0) block = static_cast<double*>(bulk->take(doubles * sizeof(double)));
+  // take() hands out zeroed memory; the maps need 16-byte alignment.
+  if (bulk != nullptr && doubles > 0) block = static_cast<double*>(bulk->take(doubles * sizeof(double), 16));
   const bool placed = block != nullptr;
   if (block == nullptr && doubles > 0) {
     own = std::make_unique<double[]>(doubles);  // zeroed

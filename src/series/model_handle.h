@@ -43,7 +43,7 @@ using ModelHandle = std::unique_ptr<SeriesModel, ModelRelease>;
 
 inline ModelHandle make_model(std::string id, const SeriesSettings& settings,
                               const std::shared_ptr<BulkMemory>& bulk) {
-  if (void* at = bulk ? bulk->take(sizeof(SeriesModel)) : nullptr)
+  if (void* at = bulk ? bulk->take(sizeof(SeriesModel), alignof(SeriesModel)) : nullptr)
     return ModelHandle(new (at) SeriesModel(std::move(id), settings), ModelRelease(bulk));
   return ModelHandle(new SeriesModel(std::move(id), settings));
 }

@@ -29,7 +29,6 @@ SeriesModel::SeriesModel(std::string id, const SeriesSettings& settings)
       scales_(2, window_rows(settings.model)),
       season_values_(static_cast<std::size_t>(season_column_count(settings.model)), window_rows(settings.model)),
       seasons_per_row_(season_column_count(settings.model)),
-      fit_weights_(1, window_rows(settings.model)),
       quantile_(bounds::upper_quantile(settings.alert.alpha)) {}
 
 std::optional<std::string> SeriesModel::missing_covariate(const Observation& obs) const {
@@ -162,26 +161,27 @@ void SeriesModel::learn(const Observation& obs, double weight) {
     if (!has_fit_) cause = RefitCause::first;
     else if (records_.size() < spec.cadence_from) cause = RefitCause::warm_up;
     else if (since_refit_ >= spec.refit_every) cause = RefitCause::cadence;
-    else if (steps && !step_.active()) cause = RefitCause::no_sums;
+    else if (steps && !stepping()) cause = RefitCause::no_sums;
     if (cause != RefitCause::asked) {
       refit(cause);
       return;
     }
   }
-  if (steps && step_.active()) {
+  if (steps && stepping()) {
     step_forward();
   }
 }
 
 void SeriesModel::drop_oldest(std::size_t rows) {
-  if (step_.active()) {
+  if (stepping()) {
     // The records leaving the window take their terms out of the sums.
-    const std::size_t in_fit = std::min(rows, fit_weights_.size());
+    Steps& st = *steps_;
+    const std::size_t in_fit = std::min(rows, st.fit_weights.size());
     for (std::size_t i = 0; i < in_fit; ++i) {
       const double offset = stored_row(i);
-      step_.account(step_x_.data(), offset, static_cast<double>(count_at(i)), *fit_weights_.row(i), -1);
+      st.sums.account(st.x.data(), offset, static_cast<double>(count_at(i)), *st.fit_weights.row(i), -1);
     }
-    fit_weights_.pop_front(in_fit);
+    st.fit_weights.pop_front(in_fit);
   }
   records_.pop_front(rows);
   if (!wide_.empty()) wide_.pop_front(rows);
@@ -299,7 +299,7 @@ void SeriesModel::refit(RefitCause cause) {
   }
   // Steps start only from a converged fit; otherwise the next record refits.
   if (steps && converged) start_steps(fit_weights, correction, gamma, small);
-  else step_.clear();
+  else if (steps_) steps_->sums.clear();
   release_workspace();
   fits_by_cause_[static_cast<std::size_t>(cause)] += static_cast<std::uint32_t>(fits_done_ - fits_before);
 }

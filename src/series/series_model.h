@@ -162,7 +162,7 @@ class SeriesModel {
   // the steps' beta*.
   void start_steps(const Eigen::VectorXd& fit_weights, const Correction& correction, double gamma,
                    const glm::SmallFit& small);
-  // The design row (into step_x_) and offset of the window's record i.
+  // The design row (into steps_->x) and offset of the window's record i.
   double stored_row(std::size_t i);
   // The prior weight a record enters the step sums with: the resistant
   // down-weighting against the current fit, as resistant_weights gives it.
@@ -261,22 +261,32 @@ class SeriesModel {
   std::uint64_t steps_recentred_ = 0;
   std::array<std::uint32_t, kRefitCauses> fits_by_cause_{};
 
-  // model.step_between_refits: the sums (empty when off, and after a
-  // restore until the next full refit) and the weight each of the window's
-  // oldest fit_weights_.size() records entered them with.
-  WindowStep step_;
-  Ring<double> fit_weights_;
   // alert.alpha's normal quantile, computed once (bounds::AlphaQuantile):
   // settings_ outlives the model and never changes under it.
   bounds::AlphaQuantile quantile_;
-  Correction step_correction_;
-  double step_gamma_ = 1;
-  double step_phi_start_ = 1;  // Pearson's statistic / (n - p) when the sums started
-  Eigen::RowVectorXd step_x_;
-  // Per-record scratch of the steps (sized by start_steps, so a record
-  // allocates nothing): Cov * x for step_weight, the stepped coefficients.
-  Eigen::VectorXd step_cx_;
-  Eigen::VectorXd step_beta_;
+
+  // model.step_between_refits: the sums and the weight each of the
+  // window's oldest fit_weights.size() records entered them with, and the
+  // steps' scratch. Behind a pointer, made by the first start_steps: a
+  // model with steps off never has them, and a restored one has none until
+  // its first refit (~250 bytes a series less to build in a restore,
+  // docs/benchmarks.md "Restart, ninth pass").
+  struct Steps {
+    explicit Steps(std::size_t max_rows) : fit_weights(1, max_rows) {}
+    WindowStep sums;
+    Ring<double> fit_weights;
+    Correction correction;
+    double gamma = 1;
+    double phi_start = 1;  // Pearson's statistic / (n - p) when the sums started
+    Eigen::RowVectorXd x;
+    // Per-record scratch (sized by start_steps, so a record allocates
+    // nothing): Cov * x for step_weight, the stepped coefficients.
+    Eigen::VectorXd cx;
+    Eigen::VectorXd beta;
+  };
+  std::unique_ptr<Steps> steps_;
+  // True while the step sums are active (steps_ made and not cleared).
+  bool stepping() const { return steps_ && steps_->sums.active(); }
 
   // Frees the refit scratch below.
   void release_workspace();

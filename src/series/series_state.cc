@@ -73,8 +73,7 @@ bool load_fit(StateReader& r, ModelFit& f, int p, BulkMemory* bulk) {
   // so a fit saved with others gets a block of its own below.
   const auto count = static_cast<Eigen::Index>(nc);
   bool placed = f.shape(count, nc, count, count, bulk);
-  ModelFit::VectorMap coefficients = f.coefficients();
-  for (Eigen::Index i = 0; i < count; ++i) coefficients(i) = r.f64();
+  r.f64s(f.coefficients().data(), static_cast<std::size_t>(count));
   const std::uint64_t na = r.u64();
   // A flag takes at least a byte of the state.
   if (na > kMaxSaved || na > r.remaining()) r.fail("aliased flags too many");
@@ -94,9 +93,9 @@ bool load_fit(StateReader& r, ModelFit& f, int p, BulkMemory* bulk) {
     f.shape(count, na, static_cast<Eigen::Index>(rows), static_cast<Eigen::Index>(cols), nullptr);
     placed = false;
   }
+  // Column by column, as saved: the map's own (column-major) order.
   ModelFit::MatrixMap covariance = f.covariance();
-  for (Eigen::Index j = 0; j < covariance.cols(); ++j)
-    for (Eigen::Index i = 0; i < covariance.rows(); ++i) covariance(i, j) = r.f64();
+  r.f64s(covariance.data(), static_cast<std::size_t>(covariance.size()));
   f.deviance = r.f64();
   f.null_deviance = r.f64();
   f.log_likelihood = r.f64();
@@ -203,8 +202,7 @@ void SeriesModel::load_state(StateReader& r) {
   r.expect("model");
   // The step sums (model.step_between_refits) are not saved: a restored
   // series refits at its first new record and starts them again.
-  step_.clear();
-  fit_weights_.clear();
+  steps_.reset();
   const bool has_origin = r.boolean();
   const std::int64_t origin = r.i64();
   origin_.reset();
@@ -238,7 +236,7 @@ void SeriesModel::load_state(StateReader& r) {
   // A ring's block from the bulk mapping when it can hold it, else its own.
   const auto place = [&](auto& ring) {
     using Row = std::remove_pointer_t<decltype(ring.row(0))>;
-    if (void* block = bulk ? bulk->take(rows * ring.width() * sizeof(Row)) : nullptr) {
+    if (void* block = bulk ? bulk->take(rows * ring.width() * sizeof(Row), alignof(Row)) : nullptr) {
       ring.adopt(static_cast<Row*>(block), rows);
       bulk_ = bulk;
     } else {
@@ -247,24 +245,8 @@ void SeriesModel::load_state(StateReader& r) {
   };
   place(records_);
   if (k > 0) place(covariate_values_);
-  std::int64_t previous = 0;
-  for (std::uint64_t i = 0; i < n && !r.failed(); ++i) {
-    std::int64_t time = 0, count = 0;
-    double exposure = 1.0, weight = 1.0;
-    if (r.binary()) {
-      const std::uint64_t flags = r.u64();
-      if (flags > (kUnitExposure | kUnitWeight)) r.fail(fmt::format("history record flags {} unknown", flags));
-      previous = advance(previous, r.i64());
-      time = previous;
-      count = r.i64();
-      if (!(flags & kUnitExposure)) exposure = r.f64();
-      if (!(flags & kUnitWeight)) weight = r.f64();
-    } else {
-      time = r.i64();
-      count = r.i64();
-      exposure = r.f64();
-      weight = r.f64();
-    }
+  // Appends one record; returns its row of covariates (k values to fill).
+  const auto append = [&](std::int64_t time, std::int64_t count, double exposure, double weight) {
     // The first record that does not fit Stored starts wide_'s rows, the
     // first with a scale other than 1 scales_': their blocks are placed like
     // the others, for the whole saved history.
@@ -275,10 +257,74 @@ void SeriesModel::load_state(StateReader& r) {
       if (scales_.empty()) place(scales_);
       push_scales(exposure, weight);
     }
-    if (k > 0) {
-      double* cov = covariate_values_.push_back();
+    return k > 0 ? covariate_values_.push_back() : nullptr;
+  };
+  std::int64_t previous = 0;
+  std::uint64_t i = 0;
+  if (r.binary()) {
+    // The longest record a binary history can hold: flags (1 byte when
+    // known), time step and count (10 each), exposure and weight, the
+    // covariates.
+    const std::size_t longest = 1 + 10 + 10 + 8 + 8 + 8 * static_cast<std::size_t>(k);
+    while (i < n && !r.failed()) {
+      // Most records are decoded straight from the reader's buffer;
+      // decode_records stops short of the buffer's last `longest` bytes and
+      // at anything unusual (a flags byte it does not know), which the
+      // record-by-record path below then reads, or refuses with its words.
+      const std::string_view buffered = r.peek(longest);
+      const auto* at = reinterpret_cast<const unsigned char*>(buffered.data());
+      std::size_t used = 0;
+      while (i < n && buffered.size() - used >= longest) {
+        const unsigned char* p = at + used;
+        const std::uint64_t flags = *p;
+        if (flags > (kUnitExposure | kUnitWeight)) break;
+        std::size_t len = 1;
+        std::uint64_t v = 0;
+        std::size_t bytes = decode_leb128(p + len, v);
+        if (bytes == 0) break;
+        len += bytes;
+        const std::int64_t time = advance(previous, unzigzag(v));
+        bytes = decode_leb128(p + len, v);
+        if (bytes == 0) break;
+        len += bytes;
+        const std::int64_t count = unzigzag(v);
+        double exposure = 1.0, weight = 1.0;
+        if (!(flags & kUnitExposure)) {
+          exposure = decode_f64(p + len);
+          len += 8;
+        }
+        if (!(flags & kUnitWeight)) {
+          weight = decode_f64(p + len);
+          len += 8;
+        }
+        previous = time;
+        double* cov = append(time, count, exposure, weight);
+        for (std::uint64_t c = 0; c < k; ++c, len += 8) cov[c] = decode_f64(p + len);
+        used += len;
+        ++i;
+      }
+      r.skip(used);
+      if (i == n || r.failed()) break;
+      const std::uint64_t flags = r.u64();
+      if (flags > (kUnitExposure | kUnitWeight)) r.fail(fmt::format("history record flags {} unknown", flags));
+      previous = advance(previous, r.i64());
+      const std::int64_t count = r.i64();
+      double exposure = 1.0, weight = 1.0;
+      if (!(flags & kUnitExposure)) exposure = r.f64();
+      if (!(flags & kUnitWeight)) weight = r.f64();
+      if (r.failed()) break;
+      double* cov = append(previous, count, exposure, weight);
       for (std::uint64_t c = 0; c < k; ++c) cov[c] = r.f64();
+      ++i;
     }
+  }
+  for (; i < n && !r.failed(); ++i) {
+    const std::int64_t time = r.i64();
+    const std::int64_t count = r.i64();
+    const double exposure = r.f64();
+    const double weight = r.f64();
+    double* cov = append(time, count, exposure, weight);
+    for (std::uint64_t c = 0; c < k; ++c) cov[c] = r.f64();
   }
   if (!records_.empty()) newest_ = time_at(records_.size() - 1);
   // The fit's arrays beside the history in the mapping (series/model_fit.h).

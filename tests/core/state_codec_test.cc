@@ -1,8 +1,12 @@
 #include "core/state_codec.h"
 
+#include <algorithm>
 #include <bit>
 #include <cmath>
+#include <cstring>
 #include <limits>
+#include <string>
+#include <vector>
 
 #include <catch2/catch.hpp>
 
@@ -176,5 +180,116 @@ TEST_CASE("binary layout: an integer reads the same far from and near the end of
     StateReader endless(text, StateLayout::binary);
     endless.u64();
     CHECK(endless.failed());
+  }
+}
+
+namespace {
+
+// Hands out `bytes` at most `piece` at a time, as a file read in pieces would.
+class PieceSource final : public StateSource {
+ public:
+  PieceSource(std::string_view bytes, std::size_t piece) : bytes_(bytes), piece_(piece) {}
+  std::size_t read(char* into, std::size_t max) override {
+    const std::size_t n = std::min({max, piece_, bytes_.size()});
+    std::memcpy(into, bytes_.data(), n);
+    bytes_.remove_prefix(n);
+    return n;
+  }
+
+ private:
+  std::string_view bytes_;
+  std::size_t piece_;
+};
+
+}  // namespace
+
+// f64s reads runs of doubles from the buffer where it holds them and value by
+// value elsewhere: the same values, and where the state is cut short the
+// same error at the same byte as calls of f64().
+TEST_CASE("binary layout: doubles read in runs equal doubles read one by one", "[state]") {
+  StateWriter w(StateLayout::binary);
+  std::vector<double> values;
+  for (int i = 0; i < 1300; ++i) values.push_back(i % 7 == 0 ? -0.0 : 1.0 / (i + 1) - 3.0 * i);
+  w.u64(7);
+  for (double v : values) w.f64(v);
+  const std::string full = w.text();
+  for (std::size_t cut : {full.size(), full.size() - 1, std::size_t{1 + 8 * 600 + 3}, std::size_t{5}}) {
+    for (std::size_t piece : {std::size_t{0}, std::size_t{1}, std::size_t{13}, std::size_t{4096}}) {
+      INFO("cut " << cut << " piece " << piece);
+      const std::string_view state = std::string_view(full).substr(0, cut);
+      StateReader one(state, StateLayout::binary);
+      CHECK(one.u64() == 7);
+      std::vector<double> by_one(values.size());
+      for (double& v : by_one) v = one.f64();
+      PieceSource source(state, piece == 0 ? state.size() : piece);
+      StateReader streamed(source, state.size(), piece == 0 ? 16 : piece);
+      StateReader whole(state, StateLayout::binary);
+      for (StateReader* runs : {&whole, &streamed}) {
+        CHECK(runs->u64() == 7);
+        std::vector<double> in_runs(values.size(), 99.0);
+        runs->f64s(in_runs.data(), in_runs.size());
+        CHECK(runs->failed() == one.failed());
+        CHECK(runs->error() == one.error());
+        for (std::size_t i = 0; i < values.size(); ++i)
+          REQUIRE(std::bit_cast<std::uint64_t>(in_runs[i]) == std::bit_cast<std::uint64_t>(by_one[i]));
+      }
+      if (cut == full.size()) {
+        CHECK_FALSE(one.failed());
+        CHECK(std::bit_cast<std::uint64_t>(by_one[0]) == std::bit_cast<std::uint64_t>(-0.0));
+        CHECK(by_one.back() == values.back());
+      }
+    }
+  }
+}
+
+// peek() shows the buffered bytes without consuming them, refilling a
+// streaming reader for as many as asked (or all that are left); skip()
+// consumes them, and reading goes on after them.
+TEST_CASE("binary layout: peek shows what is buffered and skip consumes it", "[state]") {
+  StateWriter w(StateLayout::binary);
+  for (std::uint64_t i = 0; i < 200; ++i) w.u64(i);  // one byte each below 128, two above
+  w.u64(1ull << 40);
+  const std::string full = w.text();
+  PieceSource source(full, 5);
+  StateReader r(source, full.size(), 16);
+  const std::string_view first = r.peek(40);  // more than the buffer holds: it grows
+  REQUIRE(first.size() >= 40);
+  CHECK(first.substr(0, 3) == std::string_view("\x00\x01\x02", 3));
+  CHECK(r.u64() == 0);  // nothing was consumed
+  r.skip(2);            // the bytes of 1 and 2
+  CHECK(r.u64() == 3);
+  std::string_view rest = r.peek(full.size());  // everything left
+  CHECK(rest.size() == r.remaining());
+  CHECK(r.peek(1 << 20).size() == r.remaining());  // asking beyond the end gives what is left
+  for (std::uint64_t i = 4; i < 200; ++i) REQUIRE(r.u64() == i);
+  CHECK(r.u64() == 1ull << 40);
+  CHECK(r.at_end());
+  CHECK(r.peek(10).empty());
+  StateReader whole(full, StateLayout::binary);
+  CHECK(whole.peek(1).size() == full.size());  // a whole state is all buffered
+  whole.fail("stop");
+  CHECK(whole.peek(1).empty());  // nothing after a failure
+}
+
+// A value longer than a streaming reader's buffer grows the buffer; the
+// bytes not read yet must move with it (they were lost when the buffer
+// moved before they did).
+TEST_CASE("binary layout: a string longer than a streaming reader's buffer reads whole", "[state]") {
+  std::string long_string;
+  for (int i = 0; i < 300; ++i) long_string += static_cast<char>('a' + i % 26);
+  StateWriter w(StateLayout::binary);
+  w.u64(5);
+  w.str(long_string);
+  w.u64(300);
+  const std::string full = w.text();
+  for (std::size_t piece : {std::size_t{1}, std::size_t{16}, std::size_t{17}, std::size_t{64}}) {
+    INFO("piece " << piece);
+    PieceSource source(full, piece);
+    StateReader r(source, full.size(), piece);
+    CHECK(r.u64() == 5);
+    CHECK(r.str() == long_string);
+    CHECK(r.u64() == 300);
+    CHECK_FALSE(r.failed());
+    CHECK(r.at_end());
   }
 }

@@ -1,8 +1,10 @@
 #include "series/series_model.h"
 
+#include <algorithm>
 #include <bit>
 #include <cmath>
 #include <cstdint>
+#include <cstring>
 #include <string>
 
 #include <catch2/catch.hpp>
@@ -310,6 +312,71 @@ TEST_CASE("a record whose count or time does not fit 32 bits is kept in full and
           CHECK(restored.fit().coefficients()(j) == reference.fit().coefficients()(j));
       }
     }
+  }
+}
+
+// A binary history is decoded straight from the reader's buffer until the
+// buffer runs short or a record looks unusual, and record by record there
+// (series_state.cc). A flags byte written in two bytes (a longer LEB128 of
+// the same value) must read as the usual one, whatever the piece size of a
+// streaming reader, and an unknown flags value must be refused with the
+// record-by-record path's words.
+TEST_CASE("a binary history reads the same record by record and from the buffer", "[series]") {
+  std::vector<Observation> records = seasonal_series();
+  for (Observation& o : records) o.exposure = 1.0;  // flags byte 3: exposure and weight 1
+  SeriesSettings settings;
+  settings.model.family = glm::Family::quasipoisson;
+  settings.model.trend = true;
+  settings.model.window = Window{std::nullopt, 60};
+  SeriesModel original("s", settings);
+  for (const Observation& o : records) original.learn(o);
+  StateWriter w(StateLayout::binary);
+  original.save_state(w);
+  const std::string saved = w.text();
+  // A record one day after the one before: flags 3, zigzag(86400) = 172800
+  // in three bytes, then its count. The 20th such record gets its flags in
+  // two bytes, or an unknown value.
+  const std::string daily("\x03\x80\xc6\x0a", 4);
+  std::size_t at = 0;
+  for (int i = 0; i < 20; ++i) at = saved.find(daily, at + 1);
+  REQUIRE(at != std::string::npos);
+  const std::string long_flags = saved.substr(0, at) + std::string("\x83\x00", 2) + saved.substr(at + 1);
+  const std::string bad_flags = saved.substr(0, at) + "\x05" + saved.substr(at + 1);
+  struct Pieces final : StateSource {
+    Pieces(std::string_view b, std::size_t p) : bytes(b), piece(p) {}
+    std::size_t read(char* into, std::size_t max) override {
+      const std::size_t n = std::min({max, piece, bytes.size()});
+      std::memcpy(into, bytes.data(), n);
+      bytes.remove_prefix(n);
+      return n;
+    }
+    std::string_view bytes;
+    std::size_t piece;
+  };
+  for (std::size_t piece : {std::size_t{0}, std::size_t{1}, std::size_t{7}, std::size_t{64}, std::size_t{4096}}) {
+    INFO("piece " << piece);
+    const auto load = [&](const std::string& state, SeriesModel& into) {
+      if (piece == 0) {
+        StateReader r(state, StateLayout::binary);
+        into.load_state(r);
+        return r.error();
+      }
+      Pieces source(state, piece);
+      StateReader r(source, state.size(), piece);
+      into.load_state(r);
+      return r.error();
+    };
+    SeriesModel plain("s", settings), longer("s", settings), bad("s", settings);
+    CHECK(load(saved, plain).empty());
+    CHECK(load(long_flags, longer).empty());
+    for (const SeriesModel* m : {&plain, &longer}) {
+      StateWriter again(StateLayout::binary);
+      m->save_state(again);
+      CHECK(again.text() == saved);
+    }
+    const std::string error = load(bad_flags, bad);
+    CHECK_THAT(error, Catch::Contains("history record flags 5 unknown"));
+    CHECK_THAT(error, Catch::Contains(fmt::format("at byte {}:", at + 1)));
   }
 }
 
