@@ -10,6 +10,8 @@
 
 #include <catch2/catch.hpp>
 
+#include "support/piece_source.h"
+
 using namespace tallyd;
 
 TEST_CASE("saved doubles come back bit for bit", "[state]") {
@@ -183,25 +185,7 @@ TEST_CASE("binary layout: an integer reads the same far from and near the end of
   }
 }
 
-namespace {
-
-// Hands out `bytes` at most `piece` at a time, as a file read in pieces would.
-class PieceSource final : public StateSource {
- public:
-  PieceSource(std::string_view bytes, std::size_t piece) : bytes_(bytes), piece_(piece) {}
-  std::size_t read(char* into, std::size_t max) override {
-    const std::size_t n = std::min({max, piece_, bytes_.size()});
-    std::memcpy(into, bytes_.data(), n);
-    bytes_.remove_prefix(n);
-    return n;
-  }
-
- private:
-  std::string_view bytes_;
-  std::size_t piece_;
-};
-
-}  // namespace
+using tallyd::testing::PieceSource;
 
 // f64s reads runs of doubles from the buffer where it holds them and value by
 // value elsewhere: the same values, and where the state is cut short the

@@ -14,6 +14,7 @@
 #include "core/bulk_memory.h"
 #include "core/state_codec.h"
 #include "feed/feed_merge.h"
+#include "support/piece_source.h"
 
 using namespace tallyd;
 
@@ -342,17 +343,6 @@ TEST_CASE("a binary history reads the same record by record and from the buffer"
   REQUIRE(at != std::string::npos);
   const std::string long_flags = saved.substr(0, at) + std::string("\x83\x00", 2) + saved.substr(at + 1);
   const std::string bad_flags = saved.substr(0, at) + "\x05" + saved.substr(at + 1);
-  struct Pieces final : StateSource {
-    Pieces(std::string_view b, std::size_t p) : bytes(b), piece(p) {}
-    std::size_t read(char* into, std::size_t max) override {
-      const std::size_t n = std::min({max, piece, bytes.size()});
-      std::memcpy(into, bytes.data(), n);
-      bytes.remove_prefix(n);
-      return n;
-    }
-    std::string_view bytes;
-    std::size_t piece;
-  };
   for (std::size_t piece : {std::size_t{0}, std::size_t{1}, std::size_t{7}, std::size_t{64}, std::size_t{4096}}) {
     INFO("piece " << piece);
     const auto load = [&](const std::string& state, SeriesModel& into) {
@@ -361,7 +351,7 @@ TEST_CASE("a binary history reads the same record by record and from the buffer"
         into.load_state(r);
         return r.error();
       }
-      Pieces source(state, piece);
+      testing::PieceSource source(state, piece);
       StateReader r(source, state.size(), piece);
       into.load_state(r);
       return r.error();
