@@ -17,9 +17,44 @@ namespace tallyd::glm {
 // k >= b >= a, which no write of that loop has touched: the writes are at
 // rows a' <= a, above the diagonal except for (a, a), written last and read
 // only by its own sum); mirrored at the end.
+namespace detail {
+
+// The sums of scaled_inverse_from_factor (below) in the same order, on a
+// local copy of L and a local result of P x P, P known at compile time:
+// the loops unroll and nothing is read through `out`'s strides. The result
+// is written to `out` once, bit for bit what the general loops give.
+template <int P, class Lower, class Out>
+void scaled_inverse_fixed(const Lower& lower, double scale, Out& out) {
+  double l[P][P];
+  double w[P][P];  // w[i][c] plays out(i, c)
+  for (int i = 0; i < P; ++i) {
+    for (int j = 0; j <= i; ++j) l[i][j] = lower(i, j);
+  }
+  for (int c = 0; c < P; ++c) {
+    for (int i = c; i < P; ++i) {
+      double v = i == c ? 1.0 : 0.0;
+      for (int k = c; k < i; ++k) v -= l[i][k] * w[k][c];
+      w[i][c] = v / l[i][i];
+    }
+  }
+  for (int a = 0; a < P; ++a) {
+    for (int b = P - 1; b >= a; --b) {
+      double v = 0;
+      for (int k = b; k < P; ++k) v += w[k][a] * w[k][b];
+      w[a][b] = v * scale;
+    }
+  }
+  for (int a = 0; a < P; ++a) {
+    for (int b = a; b < P; ++b) {
+      out(a, b) = w[a][b];
+      out(b, a) = w[a][b];
+    }
+  }
+}
+
+// The general loops, for any p (scaled_inverse_from_factor below for p > 8).
 template <class Lower, class Out>
-void scaled_inverse_from_factor(const Lower& lower, Eigen::Index p, double scale, Out& out) {
-  if (out.rows() != p || out.cols() != p) out.resize(p, p);
+void scaled_inverse_loops(const Lower& lower, Eigen::Index p, double scale, Out& out) {
   for (Eigen::Index c = 0; c < p; ++c) {
     for (Eigen::Index i = c; i < p; ++i) {
       double v = i == c ? 1.0 : 0.0;
@@ -36,6 +71,27 @@ void scaled_inverse_from_factor(const Lower& lower, Eigen::Index p, double scale
   }
   for (Eigen::Index a = 0; a < p; ++a) {
     for (Eigen::Index b = a + 1; b < p; ++b) out(b, a) = out(a, b);
+  }
+}
+
+}  // namespace detail
+
+// Up to 8 columns (a series model's usual size) the loops are unrolled on
+// local arrays (detail::scaled_inverse_fixed), with the same sums in the
+// same order: bit for bit the general loops' result (tests/glm/factor_inverse_test.cc).
+template <class Lower, class Out>
+void scaled_inverse_from_factor(const Lower& lower, Eigen::Index p, double scale, Out& out) {
+  if (out.rows() != p || out.cols() != p) out.resize(p, p);
+  switch (p) {
+    case 1: detail::scaled_inverse_fixed<1>(lower, scale, out); return;
+    case 2: detail::scaled_inverse_fixed<2>(lower, scale, out); return;
+    case 3: detail::scaled_inverse_fixed<3>(lower, scale, out); return;
+    case 4: detail::scaled_inverse_fixed<4>(lower, scale, out); return;
+    case 5: detail::scaled_inverse_fixed<5>(lower, scale, out); return;
+    case 6: detail::scaled_inverse_fixed<6>(lower, scale, out); return;
+    case 7: detail::scaled_inverse_fixed<7>(lower, scale, out); return;
+    case 8: detail::scaled_inverse_fixed<8>(lower, scale, out); return;
+    default: detail::scaled_inverse_loops(lower, p, scale, out); return;
   }
 }
 

@@ -3,6 +3,7 @@
 #include <algorithm>
 #include <cmath>
 #include <limits>
+#include <type_traits>
 
 #include "glm/factor_inverse.h"
 
@@ -30,6 +31,90 @@ void WindowStep::clear() {
   rows_ = 0;
 }
 
+namespace {
+
+// The per-record kernels below run after every record. For the usual
+// model sizes (p <= kUnrolled) each is instantiated with p known at compile
+// time (P), so its loops unroll and A's elements sit at constant offsets;
+// P == 0 is the general case. Every element is computed by the same
+// operations in the same order either way (the same source, instantiated
+// twice), so a size's results do not depend on which path it takes;
+// tests/series/window_step_test.cc checks both against Eigen's LLT.
+constexpr int kUnrolled = 8;
+
+template <class Kernel>
+void with_size(Eigen::Index p, Kernel&& kernel) {
+  switch (p) {
+    case 1: kernel(std::integral_constant<int, 1>{}); return;
+    case 2: kernel(std::integral_constant<int, 2>{}); return;
+    case 3: kernel(std::integral_constant<int, 3>{}); return;
+    case 4: kernel(std::integral_constant<int, 4>{}); return;
+    case 5: kernel(std::integral_constant<int, 5>{}); return;
+    case 6: kernel(std::integral_constant<int, 6>{}); return;
+    case 7: kernel(std::integral_constant<int, 7>{}); return;
+    case 8: kernel(std::integral_constant<int, kUnrolled>{}); return;
+    default: kernel(std::integral_constant<int, 0>{}); return;
+  }
+}
+
+// A's lower triangle += working x x', g += s x. `a` is column-major p x p.
+template <int P>
+void add_terms(double* __restrict a, double* __restrict g, Eigen::Index p_any, const double* __restrict x,
+               double working, double s) {
+  const Eigen::Index p = P > 0 ? P : p_any;
+  for (Eigen::Index j = 0; j < p; ++j) {
+    const double wx = working * x[j];
+    for (Eigen::Index k = 0; k <= j; ++k) a[k * p + j] += wx * x[k];
+    g[j] += s * x[j];
+  }
+}
+
+// L with L L' = A (lower triangles, column-major p x p). False when A is
+// not (numerically) positive definite.
+template <int P>
+bool factor(const double* a, double* l, Eigen::Index p_any) {
+  const Eigen::Index p = P > 0 ? P : p_any;
+  const auto at = [p](Eigen::Index i, Eigen::Index j) { return j * p + i; };
+  double largest = 0;
+  double smallest = std::numeric_limits<double>::infinity();
+  for (Eigen::Index j = 0; j < p; ++j) {
+    double v = a[at(j, j)];
+    for (Eigen::Index k = 0; k < j; ++k) v -= l[at(j, k)] * l[at(j, k)];
+    if (!(v > 0)) return false;
+    const double root = std::sqrt(v);
+    l[at(j, j)] = root;
+    largest = std::max(largest, root);
+    smallest = std::min(smallest, root);
+    for (Eigen::Index i = j + 1; i < p; ++i) {
+      double w = a[at(i, j)];
+      for (Eigen::Index k = 0; k < j; ++k) w -= l[at(i, k)] * l[at(j, k)];
+      l[at(i, j)] = w / root;
+    }
+  }
+  // Positive definite in floating point can still be near-singular (an
+  // aliased column); refuse a factor whose diagonal collapsed.
+  return smallest > 1e-7 * largest;
+}
+
+// L L' d = g into `d`, from L's lower triangle (column-major p x p).
+template <int P>
+void solve_factored(const double* l, const double* g, double* d, Eigen::Index p_any) {
+  const Eigen::Index p = P > 0 ? P : p_any;
+  const auto at = [p](Eigen::Index i, Eigen::Index j) { return j * p + i; };
+  for (Eigen::Index i = 0; i < p; ++i) {  // L z = g
+    double v = g[i];
+    for (Eigen::Index k = 0; k < i; ++k) v -= l[at(i, k)] * d[k];
+    d[i] = v / l[at(i, i)];
+  }
+  for (Eigen::Index i = p - 1; i >= 0; --i) {  // L' d = z
+    double v = d[i];
+    for (Eigen::Index k = i + 1; k < p; ++k) v -= l[at(k, i)] * d[k];
+    d[i] = v / l[at(i, i)];
+  }
+}
+
+}  // namespace
+
 void WindowStep::account(const double* x, double offset, double y, double weight, double sign) {
   if (!(weight > 0)) return;
   const Eigen::Index p = beta_.size();
@@ -41,7 +126,6 @@ void WindowStep::account(const double* x, double offset, double y, double weight
 void WindowStep::account_mean(const double* x, double mu, double y, double weight, double sign) {
   if (!(weight > 0)) return;
   if (!(mu > 0) || !std::isfinite(mu)) return;
-  const Eigen::Index p = beta_.size();
   // V(mu): mu, or mu + mu^2 / theta for NB2 (Poisson when theta is not a
   // positive finite number). Under the log link d mu / d eta = mu.
   const bool nb = family_ == glm::Family::negbin && std::isfinite(theta_) && theta_ > 0;
@@ -49,11 +133,9 @@ void WindowStep::account_mean(const double* x, double mu, double y, double weigh
   const double working = sign * weight * mu * mu / variance;
   const double residual = y - mu;
   const double s = sign * weight * residual * mu / variance;
-  for (Eigen::Index j = 0; j < p; ++j) {
-    const double wx = working * x[j];
-    for (Eigen::Index k = 0; k <= j; ++k) information_(j, k) += wx * x[k];
-    score_(j) += s * x[j];
-  }
+  with_size(beta_.size(), [&](auto size) {
+    add_terms<decltype(size)::value>(information_.data(), score_.data(), beta_.size(), x, working, s);
+  });
   pearson_ += sign * weight * residual * residual / variance;
   if (sign > 0) ++rows_;
   else if (rows_ > 0) --rows_;
@@ -63,40 +145,16 @@ bool WindowStep::solve(Eigen::VectorXd& beta) {
   const Eigen::Index p = beta_.size();
   if (!active_ || rows_ < static_cast<std::size_t>(p)) return false;
   // Cholesky of A (lower triangle), by columns, as Eigen's unblocked LLT
-  // would for these small sizes but without its allocations: this runs
-  // after every record.
+  // would for these small sizes but without its allocations; then
+  // beta* + A^-1 g by two triangular solves.
   if (factor_.rows() != p || factor_.cols() != p) factor_.resize(p, p);
-  double largest = 0;
-  double smallest = std::numeric_limits<double>::infinity();
-  for (Eigen::Index j = 0; j < p; ++j) {
-    double d = information_(j, j);
-    for (Eigen::Index k = 0; k < j; ++k) d -= factor_(j, k) * factor_(j, k);
-    if (!(d > 0)) return false;
-    const double root = std::sqrt(d);
-    factor_(j, j) = root;
-    largest = std::max(largest, root);
-    smallest = std::min(smallest, root);
-    for (Eigen::Index i = j + 1; i < p; ++i) {
-      double v = information_(i, j);
-      for (Eigen::Index k = 0; k < j; ++k) v -= factor_(i, k) * factor_(j, k);
-      factor_(i, j) = v / root;
-    }
-  }
-  // Positive definite in floating point can still be near-singular (an
-  // aliased column); refuse a factor whose diagonal collapsed.
-  if (!(smallest > 1e-7 * largest)) return false;
-  // beta* + A^-1 g: L z = g, then L' s = z.
+  bool ok = false;
+  with_size(p, [&](auto size) { ok = factor<decltype(size)::value>(information_.data(), factor_.data(), p); });
+  if (!ok) return false;  // `beta` as it was
   if (beta.size() != p) beta.resize(p);
-  for (Eigen::Index i = 0; i < p; ++i) {
-    double v = score_(i);
-    for (Eigen::Index k = 0; k < i; ++k) v -= factor_(i, k) * beta(k);
-    beta(i) = v / factor_(i, i);
-  }
-  for (Eigen::Index i = p - 1; i >= 0; --i) {
-    double v = beta(i);
-    for (Eigen::Index k = i + 1; k < p; ++k) v -= factor_(k, i) * beta(k);
-    beta(i) = v / factor_(i, i);
-  }
+  with_size(p, [&](auto size) {
+    solve_factored<decltype(size)::value>(factor_.data(), score_.data(), beta.data(), p);
+  });
   beta += beta_;
   return true;
 }

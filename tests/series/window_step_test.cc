@@ -149,39 +149,50 @@ TEST_CASE("WindowStep solve and inverse agree with Eigen's LLT on the same sums"
   // Reference: Eigen's LLT (a general-purpose linear algebra library) on the
   // matrix the step accumulated; the step's hand-written Cholesky must give
   // the same step and inverse to rounding, and refuse what LLT refuses.
+  // p = 5 takes the unrolled kernels (window_step.cc), p = 10 the general loops.
   bounds::Rng rng(11);
+  for (const int size : {5, 10}) {
+    const Eigen::Index p = size;
+    Eigen::VectorXd beta_star(p);
+    for (Eigen::Index j = 0; j < p; ++j) beta_star(j) = j == 0 ? 1.2 : 0.3 * std::sin(1.7 * static_cast<double>(j));
+    WindowStep step;
+    step.reset(beta_star, glm::Family::quasipoisson, 0);
+    Eigen::MatrixXd A = Eigen::MatrixXd::Zero(p, p);
+    Eigen::VectorXd g = Eigen::VectorXd::Zero(p);
+    for (int i = 0; i < 60; ++i) {
+      Eigen::VectorXd xv(p);
+      xv(0) = 1.0;
+      for (Eigen::Index j = 1; j < p; ++j) {
+        xv(j) = j % 3 == 0 ? rng.uniform() - 0.5 : (j % 3 == 1 ? std::sin(i * 0.3 * j) : std::cos(i * 0.3 * j));
+      }
+      const double offset = std::log(0.5 + rng.uniform());
+      const double y = static_cast<double>(rng.poisson(4.0));
+      step.account(xv.data(), offset, y, 1.0, 1);
+      const double mu = std::exp(xv.dot(beta_star) + offset);
+      A += mu * xv * xv.transpose();
+      g += (y - mu) * xv;
+    }
+    Eigen::VectorXd beta;
+    REQUIRE(step.solve(beta));
+    const Eigen::LLT<Eigen::MatrixXd> llt(A);
+    REQUIRE(llt.info() == Eigen::Success);
+    const Eigen::VectorXd want = beta_star + llt.solve(g);
+    for (Eigen::Index j = 0; j < p; ++j) CHECK(beta(j) == Approx(want(j)).epsilon(1e-10).margin(1e-12));
+    Eigen::MatrixXd inverse(p, p);
+    step.inverse(2.5, inverse);
+    const Eigen::MatrixXd want_inverse = 2.5 * llt.solve(Eigen::MatrixXd::Identity(p, p));
+    for (Eigen::Index a = 0; a < p; ++a) {
+      for (Eigen::Index b = 0; b < p; ++b) {
+        CHECK(inverse(a, b) == Approx(want_inverse(a, b)).epsilon(1e-10).margin(1e-12));
+      }
+    }
+    const Eigen::VectorXd d = beta - beta_star;
+    CHECK(step.distance2(beta) == Approx(d.dot(A * d)).epsilon(1e-10));
+  }
+
   const int p = 5;
   Eigen::VectorXd beta_star(p);
   beta_star << 1.2, -0.1, 0.3, 0.05, -0.2;
-  WindowStep step;
-  step.reset(beta_star, glm::Family::quasipoisson, 0);
-  Eigen::MatrixXd A = Eigen::MatrixXd::Zero(p, p);
-  Eigen::VectorXd g = Eigen::VectorXd::Zero(p);
-  for (int i = 0; i < 60; ++i) {
-    double x[p] = {1.0, rng.uniform() - 0.5, std::sin(i * 0.3), std::cos(i * 0.3), rng.uniform()};
-    const double offset = std::log(0.5 + rng.uniform());
-    const double y = static_cast<double>(rng.poisson(4.0));
-    step.account(x, offset, y, 1.0, 1);
-    const Eigen::Map<const Eigen::VectorXd> xv(x, p);
-    const double mu = std::exp(xv.dot(beta_star) + offset);
-    A += mu * xv * xv.transpose();
-    g += (y - mu) * xv;
-  }
-  Eigen::VectorXd beta;
-  REQUIRE(step.solve(beta));
-  const Eigen::LLT<Eigen::MatrixXd> llt(A);
-  REQUIRE(llt.info() == Eigen::Success);
-  const Eigen::VectorXd want = beta_star + llt.solve(g);
-  for (int j = 0; j < p; ++j) CHECK(beta(j) == Approx(want(j)).epsilon(1e-10).margin(1e-12));
-  Eigen::MatrixXd inverse(p, p);
-  step.inverse(2.5, inverse);
-  const Eigen::MatrixXd want_inverse = 2.5 * llt.solve(Eigen::MatrixXd::Identity(p, p));
-  for (int a = 0; a < p; ++a) {
-    for (int b = 0; b < p; ++b) CHECK(inverse(a, b) == Approx(want_inverse(a, b)).epsilon(1e-10).margin(1e-12));
-  }
-  const Eigen::VectorXd d = beta - beta_star;
-  CHECK(step.distance2(beta) == Approx(d.dot(A * d)).epsilon(1e-10));
-
   // An aliased column (the fifth a copy of the first): no step.
   WindowStep aliased;
   aliased.reset(beta_star, glm::Family::poisson, 0);
