@@ -1,7 +1,10 @@
 #include "bounds/screen.h"
 
 #include <algorithm>
+#include <array>
 #include <cmath>
+#include <limits>
+#include <mutex>
 #include <optional>
 
 #include "bounds/count_noise.h"
@@ -45,14 +48,108 @@ struct Walk {
   bool low_seen[kScreenBands] = {};
 };
 
+// The walk over a Gauss-Hermite rule's nodes when a node's side of eta_mean
+// and its band are read from its eta (the log link with no mean clamped):
+// eta_i = eta_mean + sqrt(2 v) x_i lies at or above eta_mean + e sd(eta*)
+// exactly when sqrt(2) x_i >= e, whatever the predictor. So the walk's sums,
+// taken over the nodes in the same order, are the rule's own, computed once
+// per node count; a record then only places its bands' representatives.
+// That holds while rounding cannot move a node across an edge: `gap` is the
+// smallest distance, in sd(eta*), of a node from an edge it is compared
+// with (0 for the side test of a node off 0, 1 and 2 for the bands).
+struct RuleWalk {
+  Walk sums;  // w_up, w_low, the band weights and seen flags; rep unset
+  std::array<int, kScreenBands> high_rep_node{};  // node index of band b's representative (b >= 1)
+  std::array<int, kScreenBands> low_rep_node{};
+  double gap = 0;    // usable only when > 0
+  double widest = 0;  // largest |sqrt(2) x_i|
+};
+
+RuleWalk build_rule_walk(const HermiteRule& hermite) {
+  RuleWalk r;
+  Walk& w = r.sums;
+  double gap = std::numeric_limits<double>::infinity();
+  for (std::size_t i = 0; i < hermite.nodes.size(); ++i) {
+    const double z = std::sqrt(2.0) * hermite.nodes[i];  // the node in sd(eta*)
+    const double weight = hermite.normalised[i];
+    r.widest = std::max(r.widest, std::abs(z));
+    if (z != 0) gap = std::min(gap, std::abs(z));
+    for (const double edge : kBandEdges) gap = std::min(gap, std::abs(std::abs(z) - edge));
+    if (z >= 0) {
+      w.w_up += weight;
+      int b = 0;
+      while (b + 1 < kScreenBands && z >= kBandEdges[b]) ++b;
+      if (b > 0 && !w.high_seen[b]) {
+        w.high_seen[b] = true;
+        r.high_rep_node[static_cast<std::size_t>(b)] = static_cast<int>(i);
+      }
+      w.high_band[b] += weight;
+    }
+    if (z <= 0) {
+      w.w_low += weight;
+      int b = 0;
+      while (b + 1 < kScreenBands && z <= -kBandEdges[b]) ++b;
+      if (b > 0) {
+        w.low_seen[b] = true;
+        r.low_rep_node[static_cast<std::size_t>(b)] = static_cast<int>(i);
+      }
+      w.low_band[b] += weight;
+    }
+  }
+  // sqrt(2) x_i above carries a rounding of its own (~2e-16 relative).
+  r.gap = gap - 1e-14 * (1 + r.widest);
+  return r;
+}
+
+// The rule walk for n nodes, built once per n like the rule itself
+// (gauss_hermite.h); immutable once built, thread-safe.
+const RuleWalk& rule_walk(int n) {
+  n = std::clamp(n, 1, kMaxHermiteNodes);
+  static std::array<std::once_flag, kMaxHermiteNodes + 1> built;
+  static std::array<RuleWalk, kMaxHermiteNodes + 1> walks;
+  const auto slot = static_cast<std::size_t>(n);
+  std::call_once(built[slot], [&] { walks[slot] = build_rule_walk(gauss_hermite(n)); });
+  return walks[slot];
+}
+
+// The walk of `predictor` from its rule's sums, when rounding provably
+// leaves every node on the side and in the band the exact comparison puts
+// it: each eta carries at most a few ulps of eta_mean's magnitude plus a few
+// 1e-16 of sd(eta*) times the node's reach, far inside gap * sd(eta*).
+std::optional<Walk> walk_from_rule(const Predictor& predictor, const QuadratureRule& rule) {
+  if (rule.grid || !(predictor.eta_variance > 0)) return std::nullopt;
+  const RuleWalk& r = rule_walk(rule.hermite_nodes);
+  const double sd = std::sqrt(predictor.eta_variance);
+  if (!(r.gap > 0) || !(sd * r.gap > 0x1p-46 * (std::abs(predictor.eta_mean) + sd * (2 * r.widest + 4))) ||
+      !(sd * r.gap > std::numeric_limits<double>::min())) {
+    return std::nullopt;
+  }
+  Walk w = r.sums;
+  // Each representative's eta as for_each_node computes it (mixture.h).
+  const HermiteRule& hermite = gauss_hermite(rule.hermite_nodes);
+  const double scale = std::sqrt(2 * predictor.eta_variance);
+  for (int b = 1; b < kScreenBands; ++b) {
+    const auto i = static_cast<std::size_t>(b);
+    if (w.high_seen[b]) w.high_rep[b] = predictor.eta_mean + scale * hermite.nodes[static_cast<std::size_t>(r.high_rep_node[i])];
+    if (w.low_seen[b]) w.low_rep[b] = predictor.eta_mean + scale * hermite.nodes[static_cast<std::size_t>(r.low_rep_node[i])];
+  }
+  return w;
+}
+
 Walk walk_nodes(const Predictor& predictor, const CountNoise& noise, const QuadratureRule& rule, const NoiseAt& centre) {
+  const std::optional<double> closed = lognormal_expected(predictor, noise, rule);
+  if (closed) {
+    if (std::optional<Walk> from_rule = walk_from_rule(predictor, rule)) {
+      from_rule->expected = *closed;
+      return *from_rule;
+    }
+  }
   Walk w;
   const double sd = std::sqrt(predictor.eta_variance);
   // The log link with no node's mean clamped: `expected` in closed form, and
   // a node's side of mu_c read from its eta, no exp per node. exp is
   // increasing, so eta >= eta_mean gives mu >= mu_c up to exp's rounding
   // (below 1e-15 relative), which kScreenMargin covers.
-  const std::optional<double> closed = lognormal_expected(predictor, noise, rule);
   if (closed) w.expected = *closed;
   for_each_node(predictor, rule, [&](double weight, double eta) {
     bool up = false;

@@ -27,7 +27,10 @@
 // for_each_node) without building the mixture: no allocation, one exp per
 // node (none under the log link when no node's mean is clamped: a node's
 // side is read from its eta, and `expected` is mixture.h's
-// lognormal_expected), one tail. Stage 2, for a record stage 1 leaves
+// lognormal_expected), one tail. Under the log link a Gauss-Hermite node's
+// side and band depend only on the node, so there the sums are the rule's
+// own, taken once per node count, and a record does no walk at all (while
+// rounding provably cannot move a node across an edge; screen.cc). Stage 2, for a record stage 1 leaves
 // unsettled: each side's components are split into kScreenBands bands at 1
 // and 2 sd(eta*) from eta_mean, and each band's weight multiplies the tail at
 // its innermost node (whose mean is the band's nearest to mu_c), so

@@ -7,6 +7,7 @@
 #include <boost/math/distributions/poisson.hpp>
 #include <catch2/catch.hpp>
 
+#include "bounds/gauss_hermite.h"
 #include "bounds/quadrature.h"
 #include "bounds/simulate.h"
 
@@ -29,6 +30,36 @@ TEST_CASE("screen: with no parameter uncertainty the floors are the exact Poisso
     CHECK(s.p_high_floor == Approx(at_least).epsilon(1e-10));
     CHECK(s.expected == Approx(12.0).epsilon(1e-12));
   }
+}
+
+TEST_CASE("screen: under the log link each side's floor weighs the rule's nodes on that side of eta_mean",
+          "[bounds][screen]") {
+  // Reference: Boost.Math's poisson_distribution for the tails at the
+  // central mean, and the Gauss-Hermite rule's own weights summed here node
+  // by node (screen.cc takes these sums once per rule instead of per record).
+  const CountNoise noise;  // Poisson, log link
+  const HermiteRule& rule = gauss_hermite(48);
+  double up = 0, low = 0;
+  for (std::size_t i = 0; i < rule.nodes.size(); ++i) {
+    if (rule.nodes[i] >= 0) up += rule.normalised[i];
+    if (rule.nodes[i] <= 0) low += rule.normalised[i];
+  }
+  int checked = 0;
+  for (double variance : {0.002, 0.01, 0.05}) {
+    const Predictor p{std::log(20.0), variance};
+    REQUIRE_FALSE(choose_rule(p, noise, 48, 0.001).grid);
+    const boost::math::poisson_distribution<double> poisson(20.0);
+    for (std::int64_t y : {8, 14, 20, 27, 33}) {
+      const ScreenOutcome s = screen_record(p, noise, y, 48, 0.001, 0, 1.0);  // wanted 1: no stage 0
+      if (s.stage != 1) continue;
+      ++checked;
+      const double cdf = boost::math::cdf(poisson, static_cast<double>(y));
+      const double at_least = boost::math::cdf(boost::math::complement(poisson, static_cast<double>(y - 1)));
+      CHECK(s.p_high_floor == Approx(up * at_least).epsilon(1e-12));
+      CHECK(s.p_low_floor == Approx(low * cdf).epsilon(1e-12));
+    }
+  }
+  CHECK(checked >= 10);
 }
 
 namespace {
