@@ -27,24 +27,34 @@ template <int P, class Lower, class Out>
 void scaled_inverse_fixed(const Lower& lower, double scale, Out& out) {
   double l[P][P];
   double w[P][P];  // w[i][c] plays out(i, c)
+  #pragma GCC unroll 8
   for (int i = 0; i < P; ++i) {
+    #pragma GCC unroll 8
     for (int j = 0; j <= i; ++j) l[i][j] = lower(i, j);
   }
+  #pragma GCC unroll 8
   for (int c = 0; c < P; ++c) {
+    #pragma GCC unroll 8
     for (int i = c; i < P; ++i) {
       double v = i == c ? 1.0 : 0.0;
+      #pragma GCC unroll 8
       for (int k = c; k < i; ++k) v -= l[i][k] * w[k][c];
       w[i][c] = v / l[i][i];
     }
   }
+  #pragma GCC unroll 8
   for (int a = 0; a < P; ++a) {
+    #pragma GCC unroll 8
     for (int b = P - 1; b >= a; --b) {
       double v = 0;
+      #pragma GCC unroll 8
       for (int k = b; k < P; ++k) v += w[k][a] * w[k][b];
       w[a][b] = v * scale;
     }
   }
+  #pragma GCC unroll 8
   for (int a = 0; a < P; ++a) {
+    #pragma GCC unroll 8
     for (int b = a; b < P; ++b) {
       out(a, b) = w[a][b];
       out(b, a) = w[a][b];

@@ -62,8 +62,10 @@ template <int P>
 void add_terms(double* __restrict a, double* __restrict g, Eigen::Index p_any, const double* __restrict x,
                double working, double s) {
   const Eigen::Index p = P > 0 ? P : p_any;
+  #pragma GCC unroll 8
   for (Eigen::Index j = 0; j < p; ++j) {
     const double wx = working * x[j];
+    #pragma GCC unroll 8
     for (Eigen::Index k = 0; k <= j; ++k) a[k * p + j] += wx * x[k];
     g[j] += s * x[j];
   }
@@ -77,16 +79,20 @@ bool factor(const double* a, double* l, Eigen::Index p_any) {
   const auto at = [p](Eigen::Index i, Eigen::Index j) { return j * p + i; };
   double largest = 0;
   double smallest = std::numeric_limits<double>::infinity();
+  #pragma GCC unroll 8
   for (Eigen::Index j = 0; j < p; ++j) {
     double v = a[at(j, j)];
+    #pragma GCC unroll 8
     for (Eigen::Index k = 0; k < j; ++k) v -= l[at(j, k)] * l[at(j, k)];
     if (!(v > 0)) return false;
     const double root = std::sqrt(v);
     l[at(j, j)] = root;
     largest = std::max(largest, root);
     smallest = std::min(smallest, root);
+    #pragma GCC unroll 8
     for (Eigen::Index i = j + 1; i < p; ++i) {
       double w = a[at(i, j)];
+      #pragma GCC unroll 8
       for (Eigen::Index k = 0; k < j; ++k) w -= l[at(i, k)] * l[at(j, k)];
       l[at(i, j)] = w / root;
     }
@@ -101,13 +107,17 @@ template <int P>
 void solve_factored(const double* l, const double* g, double* d, Eigen::Index p_any) {
   const Eigen::Index p = P > 0 ? P : p_any;
   const auto at = [p](Eigen::Index i, Eigen::Index j) { return j * p + i; };
+  #pragma GCC unroll 8
   for (Eigen::Index i = 0; i < p; ++i) {  // L z = g
     double v = g[i];
+    #pragma GCC unroll 8
     for (Eigen::Index k = 0; k < i; ++k) v -= l[at(i, k)] * d[k];
     d[i] = v / l[at(i, i)];
   }
+  #pragma GCC unroll 8
   for (Eigen::Index i = p - 1; i >= 0; --i) {  // L' d = z
     double v = d[i];
+    #pragma GCC unroll 8
     for (Eigen::Index k = i + 1; k < p; ++k) v -= l[at(k, i)] * d[k];
     d[i] = v / l[at(i, i)];
   }
