@@ -1,6 +1,7 @@
 #include "series/design.h"
 
 #include <cmath>
+#include <cstdint>
 #include <numbers>
 
 namespace tallyd {
@@ -33,11 +34,13 @@ int season_column_count(const ModelSpec& spec) {
 
 void season_columns(const ModelSpec& spec, TimePoint time, double* out) {
   int j = 0;
-  const double epoch = static_cast<double>(time.time_since_epoch().count());
+  const std::int64_t epoch = time.time_since_epoch().count();
   for (const Season& s : spec.seasons) {
-    const double period = static_cast<double>(s.period.count());
-    // Phase from absolute time, reduced first so the angle stays small and exact.
-    const double phase = std::fmod(epoch, period) / period;
+    const std::int64_t period = s.period.count();
+    // Phase from absolute time, reduced first so the angle stays small and
+    // exact: the integer remainder (its sign the dividend's, as fmod's) is
+    // what fmod of the two as doubles gives, in one division.
+    const double phase = static_cast<double>(period != 0 ? epoch % period : 0) / static_cast<double>(period);
     for (int k = 1; k <= s.harmonics; ++k) {
       const double angle = 2.0 * std::numbers::pi * k * phase;
       out[j++] = std::sin(angle);

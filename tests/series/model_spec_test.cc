@@ -1,7 +1,11 @@
 #include "series/model_spec.h"
 
+#include <cmath>
+#include <numbers>
+
 #include <catch2/catch.hpp>
 
+#include "core/time.h"
 #include "series/design.h"
 
 using namespace tallyd;
@@ -74,4 +78,30 @@ TEST_CASE("seasonal phase depends on absolute time, not on the series origin", "
   // 06:00 UTC is a quarter of a day: sin = 1, cos = 0.
   CHECK(a(1) == Approx(1.0));
   CHECK(a(2) == Approx(0.0).margin(1e-9));
+}
+
+TEST_CASE("seasonal phase: the same columns as fmod of the epoch seconds, before and after 1970", "[series]") {
+  // Reference: the C library's fmod on the times as doubles (exact for
+  // seconds below 2^53), which the design took before it used the integer
+  // remainder; the columns must not move by a single bit.
+  ModelSpec spec;
+  spec.trend = false;
+  spec.seasons = {Season{Seconds{31557600}, 2}, Season{Seconds{604800}, 1}};
+  for (const char* text : {"1969-07-20T20:17:40Z", "1970-01-01T00:00:00Z", "2025-03-10T06:00:00Z",
+                           "2031-12-31T23:59:59Z", "1901-02-03T04:05:06Z"}) {
+    const TimePoint t = parse_time(text).value();
+    Eigen::RowVectorXd row(7);
+    design_row(spec, DesignInput{t, t, 1.0, nullptr}, row);
+    const double epoch = static_cast<double>(t.time_since_epoch().count());
+    int j = 1;
+    for (const Season& s : spec.seasons) {
+      const double period = static_cast<double>(s.period.count());
+      const double phase = std::fmod(epoch, period) / period;
+      for (int k = 1; k <= s.harmonics; ++k) {
+        const double angle = 2.0 * std::numbers::pi * k * phase;
+        CHECK(row(j++) == std::sin(angle));
+        CHECK(row(j++) == std::cos(angle));
+      }
+    }
+  }
 }
