@@ -128,10 +128,13 @@ std::optional<Walk> walk_from_rule(const Predictor& predictor, const QuadratureR
   // Each representative's eta as for_each_node computes it (mixture.h).
   const HermiteRule& hermite = gauss_hermite(rule.hermite_nodes);
   const double scale = std::sqrt(2 * predictor.eta_variance);
+  const auto eta_of = [&](int node) {
+    return predictor.eta_mean + scale * hermite.nodes[static_cast<std::size_t>(node)];
+  };
   for (int b = 1; b < kScreenBands; ++b) {
     const auto i = static_cast<std::size_t>(b);
-    if (w.high_seen[b]) w.high_rep[b] = predictor.eta_mean + scale * hermite.nodes[static_cast<std::size_t>(r.high_rep_node[i])];
-    if (w.low_seen[b]) w.low_rep[b] = predictor.eta_mean + scale * hermite.nodes[static_cast<std::size_t>(r.low_rep_node[i])];
+    if (w.high_seen[b]) w.high_rep[b] = eta_of(r.high_rep_node[i]);
+    if (w.low_seen[b]) w.low_rep[b] = eta_of(r.low_rep_node[i]);
   }
   return w;
 }
