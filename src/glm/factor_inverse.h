@@ -8,6 +8,8 @@
 
 #include <Eigen/Dense>
 
+#include "glm/unrolled_size.h"
+
 namespace tallyd::glm {
 
 // `lower(i, j)` reads L at i >= j (its diagonal positive). (L L')^-1 =
@@ -86,23 +88,17 @@ void scaled_inverse_loops(const Lower& lower, Eigen::Index p, double scale, Out&
 
 }  // namespace detail
 
-// Up to 8 columns (a series model's usual size) the loops are unrolled on
+// Up to kUnrolledColumns (a series model's usual size) the loops are unrolled on
 // local arrays (detail::scaled_inverse_fixed), with the same sums in the
 // same order: bit for bit the general loops' result (tests/glm/factor_inverse_test.cc).
 template <class Lower, class Out>
 void scaled_inverse_from_factor(const Lower& lower, Eigen::Index p, double scale, Out& out) {
   if (out.rows() != p || out.cols() != p) out.resize(p, p);
-  switch (p) {
-    case 1: detail::scaled_inverse_fixed<1>(lower, scale, out); return;
-    case 2: detail::scaled_inverse_fixed<2>(lower, scale, out); return;
-    case 3: detail::scaled_inverse_fixed<3>(lower, scale, out); return;
-    case 4: detail::scaled_inverse_fixed<4>(lower, scale, out); return;
-    case 5: detail::scaled_inverse_fixed<5>(lower, scale, out); return;
-    case 6: detail::scaled_inverse_fixed<6>(lower, scale, out); return;
-    case 7: detail::scaled_inverse_fixed<7>(lower, scale, out); return;
-    case 8: detail::scaled_inverse_fixed<8>(lower, scale, out); return;
-    default: detail::scaled_inverse_loops(lower, p, scale, out); return;
-  }
+  with_unrolled_size(p, [&](auto size) {
+    constexpr int kSize = decltype(size)::value;
+    if constexpr (kSize > 0) detail::scaled_inverse_fixed<kSize>(lower, scale, out);
+    else detail::scaled_inverse_loops(lower, p, scale, out);
+  });
 }
 
 }  // namespace tallyd::glm

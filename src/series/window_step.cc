@@ -3,9 +3,9 @@
 #include <algorithm>
 #include <cmath>
 #include <limits>
-#include <type_traits>
 
 #include "glm/factor_inverse.h"
+#include "glm/unrolled_size.h"
 
 namespace tallyd {
 
@@ -34,28 +34,12 @@ void WindowStep::clear() {
 namespace {
 
 // The per-record kernels below run after every record. For the usual
-// model sizes (p <= kUnrolled) each is instantiated with p known at compile
-// time (P), so its loops unroll and A's elements sit at constant offsets;
-// P == 0 is the general case. Every element is computed by the same
+// model sizes (p <= glm::kUnrolledColumns, glm/unrolled_size.h) each is
+// instantiated with p known at compile time (P), so its loops unroll and
+// A's elements sit at constant offsets; P == 0 is the general case. Every element is computed by the same
 // operations in the same order either way (the same source, instantiated
 // twice), so a size's results do not depend on which path it takes;
 // tests/series/window_step_test.cc checks both against Eigen's LLT.
-constexpr int kUnrolled = 8;
-
-template <class Kernel>
-void with_size(Eigen::Index p, Kernel&& kernel) {
-  switch (p) {
-    case 1: kernel(std::integral_constant<int, 1>{}); return;
-    case 2: kernel(std::integral_constant<int, 2>{}); return;
-    case 3: kernel(std::integral_constant<int, 3>{}); return;
-    case 4: kernel(std::integral_constant<int, 4>{}); return;
-    case 5: kernel(std::integral_constant<int, 5>{}); return;
-    case 6: kernel(std::integral_constant<int, 6>{}); return;
-    case 7: kernel(std::integral_constant<int, 7>{}); return;
-    case 8: kernel(std::integral_constant<int, kUnrolled>{}); return;
-    default: kernel(std::integral_constant<int, 0>{}); return;
-  }
-}
 
 // A's lower triangle += working x x', g += s x. `a` is column-major p x p.
 template <int P>
@@ -143,7 +127,7 @@ void WindowStep::account_mean(const double* x, double mu, double y, double weigh
   const double working = sign * weight * mu * mu / variance;
   const double residual = y - mu;
   const double s = sign * weight * residual * mu / variance;
-  with_size(beta_.size(), [&](auto size) {
+  glm::with_unrolled_size(beta_.size(), [&](auto size) {
     add_terms<decltype(size)::value>(information_.data(), score_.data(), beta_.size(), x, working, s);
   });
   pearson_ += sign * weight * residual * residual / variance;
@@ -159,10 +143,12 @@ bool WindowStep::solve(Eigen::VectorXd& beta) {
   // beta* + A^-1 g by two triangular solves.
   if (factor_.rows() != p || factor_.cols() != p) factor_.resize(p, p);
   bool ok = false;
-  with_size(p, [&](auto size) { ok = factor<decltype(size)::value>(information_.data(), factor_.data(), p); });
+  glm::with_unrolled_size(p, [&](auto size) {
+    ok = factor<decltype(size)::value>(information_.data(), factor_.data(), p);
+  });
   if (!ok) return false;  // `beta` as it was
   if (beta.size() != p) beta.resize(p);
-  with_size(p, [&](auto size) {
+  glm::with_unrolled_size(p, [&](auto size) {
     solve_factored<decltype(size)::value>(factor_.data(), score_.data(), beta.data(), p);
   });
   beta += beta_;
