@@ -64,7 +64,8 @@ void scaled_inverse_fixed(const Lower& lower, double scale, Out& out) {
   }
 }
 
-// The general loops, for any p (scaled_inverse_from_factor below for p > 8).
+// The general loops, for any p (scaled_inverse_from_factor below takes them
+// beyond kUnrolledColumns).
 template <class Lower, class Out>
 void scaled_inverse_loops(const Lower& lower, Eigen::Index p, double scale, Out& out) {
   for (Eigen::Index c = 0; c < p; ++c) {
@@ -88,9 +89,12 @@ void scaled_inverse_loops(const Lower& lower, Eigen::Index p, double scale, Out&
 
 }  // namespace detail
 
-// Up to kUnrolledColumns (a series model's usual size) the loops are unrolled on
-// local arrays (detail::scaled_inverse_fixed), with the same sums in the
-// same order: bit for bit the general loops' result (tests/glm/factor_inverse_test.cc).
+// Up to kUnrolledColumns (a series model's usual size) the loops are
+// unrolled on local arrays (detail::scaled_inverse_fixed), with the same
+// sums in the same order: bit for bit the general loops' result while the
+// compiler fuses no multiply-add on its own (a portable x86-64 build has
+// none to use; TALLYD_NATIVE_ARCH sets -ffp-contract=off;
+// tests/glm/factor_inverse_test.cc).
 template <class Lower, class Out>
 void scaled_inverse_from_factor(const Lower& lower, Eigen::Index p, double scale, Out& out) {
   if (out.rows() != p || out.cols() != p) out.resize(p, p);

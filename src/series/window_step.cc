@@ -36,9 +36,10 @@ namespace {
 // The per-record kernels below run after every record. For the usual
 // model sizes (p <= glm::kUnrolledColumns, glm/unrolled_size.h) each is
 // instantiated with p known at compile time (P), so its loops unroll and
-// A's elements sit at constant offsets; P == 0 is the general case. Every element is computed by the same
-// operations in the same order either way (the same source, instantiated
-// twice), so a size's results do not depend on which path it takes;
+// A's elements sit at constant offsets; P == 0 is the general case. Every
+// element is computed by the same operations in the same order either way
+// (the same source, instantiated twice), so a size's results do not depend
+// on which path it takes;
 // tests/series/window_step_test.cc checks both against Eigen's LLT.
 
 // A's lower triangle += working x x', g += s x. `a` is column-major p x p.
