@@ -104,6 +104,13 @@ bool CsvFields::split_plain(std::string_view line) {
   // quote. Only a quote at the start of a field quotes it; one further in
   // is a plain character, as in the general reading.
   const auto add = [&](std::size_t from, std::size_t to) {
+    // The usual field opens with a byte above '"' and closes with one above
+    // ' ' (as unsigned bytes): nothing to trim and no quote, so no loops.
+    if (from < to && static_cast<unsigned char>(text[from]) > '"' &&
+        static_cast<unsigned char>(text[to - 1]) > ' ') {
+      fields_.emplace_back(text + from, to - from);
+      return true;
+    }
     while (from < to && is_blank(text[from])) ++from;
     if (from < to && text[from] == '"') return false;
     while (to > from && is_blank(text[to - 1])) --to;

@@ -4,7 +4,9 @@
 
 #include <charconv>
 #include <cmath>
+#include <cstdint>
 #include <cstdio>
+#include <cstring>
 
 #include "feed/utc_stamp.h"
 #include "feed/utf8.h"
@@ -111,6 +113,34 @@ Whole parse_whole(std::string_view text, std::int64_t& out) {
   return Whole::ok;
 }
 
+// True when every byte of `text` is printable ASCII (0x20-0x7E), tested
+// eight bytes at a time: an id is usually a dozen bytes or so.
+bool all_printable_ascii(std::string_view text) {
+  constexpr std::uint64_t kHigh = 0x8080808080808080ULL;
+  // With every byte below 0x80, adding 0x60 to each sets its high bit exactly
+  // when it is >= 0x20, and adding 0x01 exactly when it is 0x7F; no byte's
+  // sum reaches 0x100 (0x7F + 0x60 = 0xDF), so none carries into the next.
+  const auto printable = [](std::uint64_t w) {
+    return (w & kHigh) == 0 && ((w + 0x6060606060606060ULL) & kHigh) == kHigh &&
+           ((w + 0x0101010101010101ULL) & kHigh) == 0;
+  };
+  const std::size_t n = text.size();
+  if (n < 8) {
+    for (char c : text)
+      if (static_cast<unsigned char>(c - 0x20) >= 0x5F) return false;
+    return true;
+  }
+  std::uint64_t w;
+  for (std::size_t i = 0; i + 8 <= n; i += 8) {
+    std::memcpy(&w, text.data() + i, 8);
+    if (!printable(w)) return false;
+  }
+  // The last eight bytes (overlapping the last whole word when n is not a
+  // multiple of eight: those bytes are tested twice).
+  std::memcpy(&w, text.data() + n - 8, 8);
+  return printable(w);
+}
+
 FieldFault fault(RejectReason reason, std::string detail) { return FieldFault{reason, std::move(detail)}; }
 
 // True when the digits before any exponent are not all zero.
@@ -165,9 +195,7 @@ FieldCheck check_series(std::string_view text) {
   // The usual id is printable ASCII and does not start with a space: then it
   // is good. Anything else (tabs, bytes >= 0x7F, controls, a leading space
   // that might begin an all-blank id) takes the full checks below.
-  std::size_t i = 0;
-  while (i < text.size() && static_cast<unsigned char>(text[i] - 0x20) < 0x5F) ++i;
-  if (i == text.size() && i > 0 && text[0] != ' ') return std::nullopt;
+  if (!text.empty() && text[0] != ' ' && all_printable_ascii(text)) return std::nullopt;
 
   if (trim_blanks(text).empty()) return fault(RejectReason::bad_series, "series id is empty");
   if (const std::size_t bad = utf8_error_offset(text); bad != std::string_view::npos)

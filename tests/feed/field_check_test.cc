@@ -126,6 +126,36 @@ TEST_CASE("series id must be non-empty UTF-8 text", "[feed][field]") {
   CHECK(c->detail == "series id 'a\\x09b' contains a control character");
 }
 
+TEST_CASE("series id: every single byte value at every position, across eight-byte words", "[feed][field]") {
+  // check_series tests printable ASCII eight bytes at a time; a single odd
+  // byte anywhere in ids of 1 to 19 bytes must be caught as the byte-by-byte
+  // definition says: a control character (below 0x20, or 0x7F) or a lone
+  // byte >= 0x80 (never valid UTF-8 alone) is refused as bad_format, and
+  // every other byte is accepted (a leading blank too, as the id is not all
+  // blanks); an id of one blank (space or tab) is empty, bad_series.
+  for (std::size_t length = 1; length <= 19; ++length) {
+    for (std::size_t at = 0; at < length; ++at) {
+      for (int byte = 0; byte < 256; ++byte) {
+        std::string id(length, 'k');
+        id[at] = static_cast<char>(byte);
+        const bool bad = byte < 0x20 || byte >= 0x7F;
+        const bool all_blank = length == 1 && (byte == ' ' || byte == '\t');
+        const FieldCheck c = check_series(id);
+        INFO("length " << length << ", byte " << byte << " at " << at);
+        if (all_blank) {
+          REQUIRE(c);
+          CHECK(c->reason == RejectReason::bad_series);
+        } else if (bad) {
+          REQUIRE(c);
+          CHECK(c->reason == RejectReason::bad_format);
+        } else {
+          CHECK_FALSE(c);
+        }
+      }
+    }
+  }
+}
+
 TEST_CASE("time as text and as a number of epoch seconds", "[feed][field]") {
   TimePoint t{};
   CHECK_FALSE(read_time("2000-01-01T00:00:00Z", t));
