@@ -119,16 +119,22 @@ bool CsvFields::split_plain(std::string_view line) {
   };
   std::size_t start = 0;
   if constexpr (std::endian::native == std::endian::little) {
-    // Eight bytes a step, every comma of the step from one word.
-    for (std::size_t base = 0; base < line.size(); base += 8) {
-      std::uint64_t commas = comma_bits(text + base, std::min<std::size_t>(8, line.size() - base), text);
+    // Eight bytes a step, every comma of the step from one word: whole words
+    // first, then the short rest (if any) once.
+    const auto fields_up_to_commas = [&](std::uint64_t commas, std::size_t base) {
       while (commas != 0) {
         const std::size_t at = base + static_cast<std::size_t>(std::countr_zero(commas)) / 8;
         commas &= commas - 1;
         if (!add(start, at)) return false;
         start = at + 1;
       }
-    }
+      return true;
+    };
+    const std::size_t size = line.size();
+    std::size_t base = 0;
+    for (; base + 8 <= size; base += 8)
+      if (!fields_up_to_commas(comma_bits(text + base, 8, text), base)) return false;
+    if (base < size && !fields_up_to_commas(comma_bits(text + base, size - base, text), base)) return false;
   } else {
     for (std::size_t at = 0; at < line.size(); ++at) {
       if (line[at] != ',') continue;

@@ -233,6 +233,17 @@ FieldCheck read_epoch_number(std::string_view number_text, TimePoint& time) {
 }
 
 FieldCheck read_count(std::string_view text, std::int64_t& count) {
+  // The usual count, "17": up to 18 digits and nothing else, read in place
+  // (what parse_whole's first step reads), before any other check.
+  if (text.size() - 1 < kMaxPlainWholeDigits) {
+    std::int64_t n = 0;
+    std::size_t i = 0;
+    while (i < text.size() && text[i] >= '0' && text[i] <= '9') n = n * 10 + (text[i++] - '0');
+    if (i == text.size()) {
+      count = n;
+      return std::nullopt;
+    }
+  }
   if (text.empty()) return fault(RejectReason::bad_count, "count is empty");
   std::int64_t n = 0;
   const Whole w = parse_whole(text, n);
@@ -255,9 +266,14 @@ FieldCheck read_exposure(std::string_view text, double& exposure) {
   // An exposure column with an empty cell means the effort was not recorded:
   // such a count can be neither judged nor learned (only an absent column
   // means the default of 1).
+  double value = 0;
+  // The usual effort, "2" or "1.5": a plain positive decimal, accepted at once.
+  if (parse_plain_decimal(text, value) && value > 0) {
+    exposure = value;
+    return std::nullopt;
+  }
   if (text.empty())
     return fault(RejectReason::missing_exposure, "exposure is empty: the effort behind this count is unknown");
-  double value = 0;
   switch (parse_real(text, value)) {
     case Number::ok: break;
     case Number::not_a_number:
