@@ -38,12 +38,11 @@ std::uint64_t comma_bits(const char* p, std::size_t n, const char* line_start) {
 }  // namespace
 
 Status CsvFields::split(std::string_view line) {
-  fields_.clear();
   // Most lines have no quoted field: then every field is the trimmed text
   // between commas, found eight bytes at a time (comma_bits) rather than
   // byte by byte. A field that opens with a quote sends the
   // line to the general reading below.
-  if (split_plain(line)) return Ok{};
+  if (split_unquoted(line)) return Ok{};
   fields_.clear();
   unescaped_.clear();
   // Unescaped text is never longer than the line, so with this capacity the
@@ -98,7 +97,8 @@ Status CsvFields::split(std::string_view line) {
   return Ok{};
 }
 
-bool CsvFields::split_plain(std::string_view line) {
+bool CsvFields::split_unquoted(std::string_view line) {
+  fields_.clear();
   const char* const text = line.data();
   // One field, text[from, to) before trimming; false when it opens with a
   // quote. Only a quote at the start of a field quotes it; one further in

@@ -27,17 +27,16 @@ class CsvFields {
   // The fields stay readable until the next split(); they point into `line`
   // or into this object, so `line` must outlive them as well.
   Status split(std::string_view line);
+  // The usual case of split(), without a Status to build: splits `line` and
+  // returns true when no field opens with '"' (after blanks); false, with
+  // the fields unspecified, when one does, and then split() must read it.
+  bool split_unquoted(std::string_view line);
 
   std::size_t size() const { return fields_.size(); }
   // Precondition: i < size().
   std::string_view operator[](std::size_t i) const { return fields_[i]; }
 
  private:
-  // split() for a line where no field opens with '"' (after blanks). False,
-  // with fields_ partly filled, at the first field that does: the line
-  // needs the general reading.
-  bool split_plain(std::string_view line);
-
   std::vector<std::string_view> fields_;
   std::string unescaped_;  // quoted fields that contained "" escapes
 };

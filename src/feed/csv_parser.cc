@@ -118,8 +118,10 @@ LineKind CsvParser::parse_into(std::string_view line, const SourcePos& where, Fe
     out.value = std::move(rejection);
     return LineKind::rejected;
   };
-  if (Status s = fields_.split(line); !s)
-    return refuse(reject(RejectReason::bad_format, where, "CSV " + s.error().message));
+  if (!fields_.split_unquoted(line)) {
+    if (Status s = fields_.split(line); !s)
+      return refuse(reject(RejectReason::bad_format, where, "CSV " + s.error().message));
+  }
   if (fields_.size() != column_count_)
     return refuse(reject(RejectReason::bad_format, where,
                          "line has " + std::to_string(fields_.size()) + " fields but the header has " +
