@@ -85,19 +85,24 @@ enum class Whole : std::uint8_t { ok, not_a_number, not_whole, too_large };
 // Up to 18 decimal digits and nothing else always fit an int64.
 constexpr std::size_t kMaxPlainWholeDigits = 18;
 
+// The usual count, "17": 1 to kMaxPlainWholeDigits decimal digits and
+// nothing else, read here as std::from_chars would read it. False (`out`
+// untouched) for anything else.
+bool parse_plain_whole(std::string_view text, std::int64_t& out) {
+  if (text.size() - 1 >= kMaxPlainWholeDigits) return false;  // empty, or too long
+  std::int64_t n = 0;
+  for (char c : text) {
+    if (c < '0' || c > '9') return false;
+    n = n * 10 + (c - '0');
+  }
+  out = n;
+  return true;
+}
+
 // A whole number in integer, decimal or exponent form, as int64.
 Whole parse_whole(std::string_view text, std::int64_t& out) {
   if (text.empty()) return Whole::not_a_number;
-  if (text.size() <= kMaxPlainWholeDigits) {
-    // The usual count, "17": read here what std::from_chars would read.
-    std::int64_t n = 0;
-    std::size_t i = 0;
-    while (i < text.size() && text[i] >= '0' && text[i] <= '9') n = n * 10 + (text[i++] - '0');
-    if (i == text.size()) {
-      out = n;
-      return Whole::ok;
-    }
-  }
+  if (parse_plain_whole(text, out)) return Whole::ok;
   const char* end = text.data() + text.size();
   auto [ptr, ec] = std::from_chars(text.data(), end, out);
   if (ptr == end) return ec == std::errc() ? Whole::ok : Whole::too_large;
@@ -233,17 +238,8 @@ FieldCheck read_epoch_number(std::string_view number_text, TimePoint& time) {
 }
 
 FieldCheck read_count(std::string_view text, std::int64_t& count) {
-  // The usual count, "17": up to 18 digits and nothing else, read in place
-  // (what parse_whole's first step reads), before any other check.
-  if (text.size() - 1 < kMaxPlainWholeDigits) {
-    std::int64_t n = 0;
-    std::size_t i = 0;
-    while (i < text.size() && text[i] >= '0' && text[i] <= '9') n = n * 10 + (text[i++] - '0');
-    if (i == text.size()) {
-      count = n;
-      return std::nullopt;
-    }
-  }
+  // The usual count, "17", before any other check.
+  if (parse_plain_whole(text, count)) return std::nullopt;
   if (text.empty()) return fault(RejectReason::bad_count, "count is empty");
   std::int64_t n = 0;
   const Whole w = parse_whole(text, n);
