@@ -158,7 +158,7 @@ Status write_file(const std::string& path, const Engine& engine, const Marks& ma
     return Error{fmt::format("{}: cannot rename checkpoint into place: {}", path, std::strerror(errno))};
   // The rename itself must reach the disk before we rely on it.
   std::string dir = std::filesystem::path(path).parent_path().string();
-  if (dir.empty()) dir = ".";
+  if (dir.empty()) dir.assign(1, '.');
   int dfd = ::open(dir.c_str(), O_RDONLY | O_DIRECTORY | O_CLOEXEC);
   if (dfd >= 0) {
     ::fsync(dfd);

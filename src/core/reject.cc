@@ -25,7 +25,10 @@ std::string_view reject_label(RejectReason reason) {
 
 std::string Rejection::describe() const {
   std::string s = where.source;
-  if (where.line > 0) s += ":" + std::to_string(where.line);
+  if (where.line > 0) {
+    s += ':';
+    s += std::to_string(where.line);
+  }
   if (!s.empty()) s += ": ";
   s += reject_label(reason);
   s += ": ";

@@ -51,7 +51,12 @@ std::vector<SeriesTrace> TraceCollector::finish(const Engine& engine) {
         const std::vector<std::string> names = coefficient_names(s.model);
         for (Eigen::Index i = 0; i < f.coefficients().size(); ++i) {
           CoefficientRow row;
-          row.name = i < static_cast<Eigen::Index>(names.size()) ? names[i] : "x" + std::to_string(i);
+          if (i < static_cast<Eigen::Index>(names.size())) {
+            row.name = names[i];
+          } else {
+            row.name = 'x';
+            row.name += std::to_string(i);
+          }
           row.estimate = f.coefficients()(i);
           const bool aliased = static_cast<std::size_t>(i) < f.aliased_count() && f.aliased(static_cast<std::size_t>(i));
           row.std_error = aliased ? std::numeric_limits<double>::quiet_NaN() : std::sqrt(f.covariance()(i, i));
