@@ -196,12 +196,14 @@ bool is_blank_or_comment(std::string_view line) {
   return t.empty() || t.front() == '#';
 }
 
-FieldCheck check_series(std::string_view text) {
-  // The usual id is printable ASCII and does not start with a space: then it
-  // is good. Anything else (tabs, bytes >= 0x7F, controls, a leading space
-  // that might begin an all-blank id) takes the full checks below.
-  if (!text.empty() && text[0] != ' ' && all_printable_ascii(text)) return std::nullopt;
+namespace {
 
+// The checks below each take the usual value in a few instructions and
+// leave everything else to one of these, kept out of line: the message
+// building they need would otherwise make every call pay for saving
+// registers it does not use.
+
+[[gnu::noinline]] FieldCheck check_unusual_series(std::string_view text) {
   if (trim_blanks(text).empty()) return fault(RejectReason::bad_series, "series id is empty");
   if (const std::size_t bad = utf8_error_offset(text); bad != std::string_view::npos)
     return fault(RejectReason::bad_format, "series id " + quote_value(text) + " is not valid UTF-8 (byte " +
@@ -212,6 +214,59 @@ FieldCheck check_series(std::string_view text) {
       return fault(RejectReason::bad_format, "series id " + quote_value(text) + " contains a control character");
   }
   return std::nullopt;
+}
+
+[[gnu::noinline]] FieldCheck read_unusual_count(std::string_view text, std::int64_t& count) {
+  if (text.empty()) return fault(RejectReason::bad_count, "count is empty");
+  std::int64_t n = 0;
+  const Whole w = parse_whole(text, n);
+  // A negative value is reported as such even when it is also fractional.
+  if (w != Whole::not_a_number && text.front() == '-' && has_nonzero_mantissa(text))
+    return fault(RejectReason::bad_count, "count " + quote_value(text) + " is negative");
+  switch (w) {
+    case Whole::ok: count = n; return std::nullopt;  // negatives were refused above; "-0" is 0
+    case Whole::not_a_number:
+      return fault(RejectReason::bad_count, "count " + quote_value(text) + " is not a number");
+    case Whole::not_whole:
+      return fault(RejectReason::bad_count, "count " + quote_value(text) + " is not a whole number");
+    case Whole::too_large:
+      return fault(RejectReason::bad_count, "count " + quote_value(text) + " is too large");
+  }
+  return fault(RejectReason::bad_count, "count " + quote_value(text) + " is not a number");
+}
+
+[[gnu::noinline]] FieldCheck read_unusual_exposure(std::string_view text, double& exposure) {
+  // An exposure column with an empty cell means the effort was not recorded:
+  // such a count can be neither judged nor learned (only an absent column
+  // means the default of 1).
+  if (text.empty())
+    return fault(RejectReason::missing_exposure, "exposure is empty: the effort behind this count is unknown");
+  double value = 0;
+  switch (parse_real(text, value)) {
+    case Number::ok: break;
+    case Number::not_a_number:
+      return fault(RejectReason::bad_exposure, "exposure " + quote_value(text) + " is not a number");
+    case Number::not_finite:
+      return fault(RejectReason::bad_exposure, "exposure " + quote_value(text) + " is not finite");
+  }
+  if (value < 0) return fault(RejectReason::bad_exposure, "exposure " + quote_value(text) + " is negative");
+  if (value == 0) {
+    if (has_nonzero_mantissa(text))
+      return fault(RejectReason::bad_exposure, "exposure " + quote_value(text) + " is too small to represent");
+    return fault(RejectReason::zero_exposure, "exposure " + quote_value(text) + " is zero: no effort to judge");
+  }
+  exposure = value;
+  return std::nullopt;
+}
+
+}  // namespace
+
+FieldCheck check_series(std::string_view text) {
+  // The usual id is printable ASCII and does not start with a space: then it
+  // is good. Anything else (tabs, bytes >= 0x7F, controls, a leading space
+  // that might begin an all-blank id) takes the full checks.
+  if (!text.empty() && text[0] != ' ' && all_printable_ascii(text)) return std::nullopt;
+  return check_unusual_series(text);
 }
 
 FieldCheck read_time(std::string_view text, TimePoint& time) {
@@ -240,51 +295,17 @@ FieldCheck read_epoch_number(std::string_view number_text, TimePoint& time) {
 FieldCheck read_count(std::string_view text, std::int64_t& count) {
   // The usual count, "17", before any other check.
   if (parse_plain_whole(text, count)) return std::nullopt;
-  if (text.empty()) return fault(RejectReason::bad_count, "count is empty");
-  std::int64_t n = 0;
-  const Whole w = parse_whole(text, n);
-  // A negative value is reported as such even when it is also fractional.
-  if (w != Whole::not_a_number && text.front() == '-' && has_nonzero_mantissa(text))
-    return fault(RejectReason::bad_count, "count " + quote_value(text) + " is negative");
-  switch (w) {
-    case Whole::ok: count = n; return std::nullopt;  // negatives were refused above; "-0" is 0
-    case Whole::not_a_number:
-      return fault(RejectReason::bad_count, "count " + quote_value(text) + " is not a number");
-    case Whole::not_whole:
-      return fault(RejectReason::bad_count, "count " + quote_value(text) + " is not a whole number");
-    case Whole::too_large:
-      return fault(RejectReason::bad_count, "count " + quote_value(text) + " is too large");
-  }
-  return fault(RejectReason::bad_count, "count " + quote_value(text) + " is not a number");
+  return read_unusual_count(text, count);
 }
 
 FieldCheck read_exposure(std::string_view text, double& exposure) {
-  // An exposure column with an empty cell means the effort was not recorded:
-  // such a count can be neither judged nor learned (only an absent column
-  // means the default of 1).
-  double value = 0;
   // The usual effort, "2" or "1.5": a plain positive decimal, accepted at once.
+  double value = 0;
   if (parse_plain_decimal(text, value) && value > 0) {
     exposure = value;
     return std::nullopt;
   }
-  if (text.empty())
-    return fault(RejectReason::missing_exposure, "exposure is empty: the effort behind this count is unknown");
-  switch (parse_real(text, value)) {
-    case Number::ok: break;
-    case Number::not_a_number:
-      return fault(RejectReason::bad_exposure, "exposure " + quote_value(text) + " is not a number");
-    case Number::not_finite:
-      return fault(RejectReason::bad_exposure, "exposure " + quote_value(text) + " is not finite");
-  }
-  if (value < 0) return fault(RejectReason::bad_exposure, "exposure " + quote_value(text) + " is negative");
-  if (value == 0) {
-    if (has_nonzero_mantissa(text))
-      return fault(RejectReason::bad_exposure, "exposure " + quote_value(text) + " is too small to represent");
-    return fault(RejectReason::zero_exposure, "exposure " + quote_value(text) + " is zero: no effort to judge");
-  }
-  exposure = value;
-  return std::nullopt;
+  return read_unusual_exposure(text, exposure);
 }
 
 FieldCheck read_covariate(std::string_view name, std::string_view text, double& value) {
